@@ -1,0 +1,98 @@
+"""Where a fixed beam points on the sky over time: the fast sky-track engine.
+
+For a parked dish the topocentric hour angle and declination of date are
+constant, so the beam centre's CIRS right ascension is ERA + longitude - HA.
+From there to ICRS: rotate CIRS -> GCRS (IAU 2006/2000A matrix, interpolated,
+see ``earth``), then remove the aberration due to the observer's velocity
+(orbital + diurnal; first order in v/c, error ~ (v/c)^2 ~ 2 mas). Light
+deflection by the Sun (< 0.02 arcsec beyond 10 deg from the Sun) and polar
+motion (< 0.5 arcsec) are neglected. Refraction is not modelled (geometric
+pointing, the same as astropy's AltAz frame with zero pressure).
+
+Measured against astropy's full AltAz -> ICRS/Galactic transform: better than
+0.001 deg (tests allow 0.01 deg); see tests/test_skytrack.py and
+benchmarks/bench_skytrack.py for the speed ratio.
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import erfa
+import numpy as np
+from astropy.time import Time
+
+from .earth import (EarthNodes, EarthState, cirs_to_gcrs, earth_state, gcrs_to_cirs,
+                    site_gcrs_velocity_kms, site_itrs_m, spherical_deg, unit_vectors)
+from .galactic import ICRS_TO_GALACTIC
+from .pointing import Pointing
+from .site import SPEED_OF_LIGHT_KMS, Site
+from .timebase import to_mjd_utc
+
+
+@dataclass(frozen=True)
+class BeamTrack:
+    """Beam-centre positions at each sample: ICRS and galactic, degrees."""
+
+    mjd_utc: np.ndarray
+    ra_deg: np.ndarray  # [0, 360)
+    dec_deg: np.ndarray
+    l_deg: np.ndarray  # [0, 360)
+    b_deg: np.ndarray
+
+    @property
+    def times(self) -> Time:
+        return Time(self.mjd_utc, format="mjd", scale="utc")
+
+
+def site_xyz_m(site: Site) -> np.ndarray:
+    """The site's geocentric ITRS position (m)."""
+    return site_itrs_m(site.latitude_deg, site.longitude_deg, site.height_m)
+
+
+def _observer_beta(site: Site, state: EarthState) -> np.ndarray:
+    """Observer's barycentric velocity over c, (N, 3), GCRS/ICRS axes."""
+    v = state.earth_vel_kms + site_gcrs_velocity_kms(state, site_xyz_m(site))
+    return v / SPEED_OF_LIGHT_KMS
+
+
+def _normalise(vec: np.ndarray) -> np.ndarray:
+    return vec / np.linalg.norm(vec, axis=-1, keepdims=True)
+
+
+def fixed_pointing_icrs(site: Site, ha_deg: float, dec_deg: float, state: EarthState) -> np.ndarray:
+    """ICRS unit vectors (N, 3) of a fixed topocentric (HA, Dec of date) pointing."""
+    ra_cirs_deg = np.degrees(state.era_rad) + site.longitude_deg - ha_deg
+    apparent = cirs_to_gcrs(unit_vectors(ra_cirs_deg, dec_deg), state)
+    beta = _observer_beta(site, state)
+    # Invert first-order aberration p' = p + beta - (p.beta) p.
+    dot = np.einsum("ni,ni->n", apparent, beta)[:, None]
+    return _normalise(apparent - beta + dot * apparent)
+
+
+def icrs_to_altaz_deg(site: Site, vec_icrs: np.ndarray, state: EarthState) -> tuple[np.ndarray, np.ndarray]:
+    """(alt, az) in degrees at the site for ICRS directions (N, 3) at the state's times.
+
+    The inverse of ``fixed_pointing_icrs`` (aberration applied, no refraction).
+    """
+    vec = np.broadcast_to(vec_icrs, state.era_rad.shape + (3,))
+    beta = _observer_beta(site, state)
+    dot = np.einsum("ni,ni->n", vec, beta)[:, None]
+    cirs = gcrs_to_cirs(_normalise(vec + beta - dot * vec), state)
+    ra_cirs_deg, dec_deg = spherical_deg(cirs)
+    ha_rad = np.radians(np.degrees(state.era_rad) + site.longitude_deg - ra_cirs_deg)
+    az, el = erfa.hd2ae(ha_rad, np.radians(dec_deg), np.radians(site.latitude_deg))
+    return np.degrees(el), np.degrees(az)
+
+
+def track_mjd(site: Site, pointing: Pointing, mjd_utc, nodes: EarthNodes | None = None) -> BeamTrack:
+    """Beam track for float MJD (UTC) samples; the fast path used in hot loops."""
+    state = earth_state(mjd_utc, nodes)
+    vec = fixed_pointing_icrs(site, pointing.ha_deg, pointing.dec_deg, state)
+    ra, dec = spherical_deg(vec)
+    l, b = spherical_deg(vec @ ICRS_TO_GALACTIC.T)
+    return BeamTrack(mjd_utc=state.mjd_utc, ra_deg=ra, dec_deg=dec, l_deg=l, b_deg=b)
+
+
+def beam_track(site: Site, pointing: Pointing, times: Time) -> BeamTrack:
+    """Beam-centre track of a fixed pointing at ``times`` (any astropy time scale)."""
+    return track_mjd(site, pointing, to_mjd_utc(times))

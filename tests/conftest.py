@@ -1,0 +1,29 @@
+"""Shared fixtures. Tests import the package from the checkout."""
+from __future__ import annotations
+
+import numpy as np
+import pytest
+
+import planner  # noqa: F401  (configures astropy offline before any test runs)
+from planner.site import load_site
+
+
+@pytest.fixture(scope="session")
+def club():
+    """The northern example site (3 m transit dish)."""
+    return load_site("hollowmere")
+
+
+@pytest.fixture(scope="session")
+def school():
+    """The southern example site (2 m alt-az dish)."""
+    return load_site("saltbush-ridge")
+
+
+@pytest.fixture
+def rng():
+    return np.random.default_rng(20270301)
+
+
+# MJD range inside the bundled IERS table (2020-01-01 .. 2027-06-01), for astropy comparisons.
+MJD_LO, MJD_HI = 58849.0, 61557.0
