@@ -9,8 +9,10 @@ from __future__ import annotations
 import argparse
 import logging
 import sys
-from datetime import date
+from datetime import date, datetime, timezone
 from pathlib import Path
+
+import numpy as np
 
 from rich.console import Console
 
@@ -22,7 +24,15 @@ from .pointing import (Pointing, from_altaz, from_hadec, on_meridian_at_dec,
                        on_meridian_at_elevation, require_reachable)
 from .report import PASSAGE_FIELDS, crossings_document, crossings_renderable, to_csv, to_json
 from .site import Site, available_sites, load_site
-from .timebase import local_day_span, parse_day
+from .doppler import velocity_corrections
+from .galactic import galactic_to_icrs_deg, icrs_to_galactic_deg
+from .galaxy import hi_velocity_envelope, model_from_name
+from .report import LSR_FIELDS, lsr_document, lsr_renderable, tune_document, tune_renderable
+from .sensitivity import days_to_reach, drift_time_s, radiometer_rms_k
+from .skytrack import track_mjd
+from .spectral import tuning_advice
+from .timebase import datetime_to_mjd_utc, local_day_span, parse_day, parse_instant
+from .tuning import LineSetup, drift_depth, line_setup
 
 MAX_DAYS = 731  # two years: longer plans are almost surely a typo and slow
 
@@ -83,6 +93,19 @@ def _add_pointing(p):
                    help="azimuth from north through east (deg), with --alt")
 
 
+def _add_target(p):
+    g = p.add_argument_group("sky position (instead of a parked pointing)")
+    g.add_argument("--ra", type=_number(float, "--ra", 0, 360, hi_open=True),
+                   help="ICRS right ascension (deg), with --dec; --dec alone means a parked beam")
+    g.add_argument("--l", type=_number(float, "--l", 0, 360), help="galactic longitude (deg), with --b")
+    g.add_argument("--b", type=_number(float, "--b", -90, 90), help="galactic latitude (deg), with --l")
+
+
+def _add_lsr_definition(p):
+    p.add_argument("--lsr-def", default="standard", choices=("standard", "dynamical", "schoenrich2010"),
+                   help="solar motion defining the LSR (default: standard kinematic LSR)")
+
+
 def build_parser() -> argparse.ArgumentParser:
     parser = _Parser(prog="hiplan", description="Plan 21-cm HI observations for small radio telescopes.")
     parser.add_argument("--version", action="version", version=f"hiplan {__version__}")
@@ -96,6 +119,45 @@ def build_parser() -> argparse.ArgumentParser:
     c.add_argument("--band", type=_number(float, "--band", 0, 90, lo_open=True, hi_open=True),
                    help="half-width of the |b| strip (deg; default from the site rules)")
     _add_output(c)
+
+    lsr = sub.add_parser("lsr", help="LSR velocity correction for a position or a parked beam")
+    _add_site(lsr)
+    _add_target(lsr)
+    _add_pointing(lsr)
+    lsr.add_argument("--time", help="one instant, ISO 8601 (UTC unless an offset is given; default now)")
+    lsr.add_argument("--start", help="first local day YYYY-MM-DD of a range (with --days)")
+    lsr.add_argument("--days", type=_number(int, "--days", 1, MAX_DAYS), help="length of the range")
+    lsr.add_argument("--step", type=_number(float, "--step", 0, 1440, lo_open=True), default=60.0,
+                     help="sample spacing in minutes for a range (default 60)")
+    _add_lsr_definition(lsr)
+    _add_output(lsr)
+
+    t = sub.add_parser("tune", help="receiver centre frequency, band fit and expected noise")
+    _add_site(t)
+    _add_target(t)
+    _add_pointing(t)
+    _add_period(t, default_days=30)
+    t.add_argument("--band", type=_number(float, "--band", 0, 90, lo_open=True, hi_open=True),
+                   help="half-width of the |b| strip (deg; default from the site rules)")
+    t.add_argument("--rotation", default="iau1985",
+                   help="rotation model: iau1985 (default), reid2014, reid2019, brand-blitz1993")
+    t.add_argument("--dispersion", type=_number(float, "--dispersion", 0, 100),
+                   help="velocity margin added to the envelope (km/s; default 10)")
+    t.add_argument("--disc-radius", type=_number(float, "--disc-radius", 0, 100, lo_open=True),
+                   help="outer radius of the HI disc (kpc; default 25)")
+    t.add_argument("--minutes", type=_number(float, "--minutes", 0, 1e5, lo_open=True),
+                   help="pointed integration time per position (minutes)")
+    t.add_argument("--target-rms", type=_number(float, "--target-rms", 0, 1e3, lo_open=True),
+                   help="noise level wanted per channel (K): report the days needed")
+    t.add_argument("--switched", action="store_true",
+                   help="frequency/position switching: noise factor 2 instead of 1")
+    _add_lsr_definition(t)
+    _add_output(t, formats=("table", "json"))
+
+    d = sub.add_parser("demo", help="run the whole job on the bundled example sites")
+    d.add_argument("--output-dir", type=Path, default=Path("demo-output"),
+                   help="folder for the demo files (default ./demo-output)")
+    d.add_argument("--force", action="store_true", help="replace existing demo files")
 
     s = sub.add_parser("sites", help="list the site files hiplan can find")
     _add_output(s, formats=("table", "json"))
@@ -134,6 +196,22 @@ def _pointing(args, site: Site) -> Pointing:
     return require_reachable(site, pointing)
 
 
+def _sky_target(args) -> tuple[float, float] | None:
+    """(ra, dec) ICRS in degrees from --ra/--dec or --l/--b, or None for a parked beam."""
+    if (args.l is None) != (args.b is None):
+        raise UserError("--l and --b must be given together")
+    if args.ra is not None and args.dec is None:
+        raise UserError("--ra needs --dec")
+    if args.l is not None:
+        if args.ra is not None:
+            raise UserError("give --ra/--dec or --l/--b, not both")
+        ra, dec = galactic_to_icrs_deg(args.l, args.b)
+        return float(ra), float(dec)
+    if args.ra is not None:
+        return float(args.ra), float(args.dec)
+    return None
+
+
 def _period(args, site: Site) -> tuple[float, float]:
     start = parse_day(args.start, "--start") if args.start else _today(site)
     return local_day_span(start, args.days, site.tz)
@@ -148,7 +226,8 @@ def _emit(args, console: Console, text: str | None, renderable=None) -> None:
     """Write ``text`` to --output atomically, or print it / the rich renderable."""
     if args.output is not None:
         write_atomic(args.output, text if text is not None else _plain(renderable), args.force)
-        Console(stderr=True).print(f"wrote {args.output}")
+        if console.file is sys.stdout:
+            Console(stderr=True).print(f"wrote {args.output}")
     elif renderable is not None:
         console.print(renderable)
     else:
@@ -198,7 +277,144 @@ def cmd_sites(args, console: Console) -> int:
     return 0
 
 
-COMMANDS = {"crossings": cmd_crossings, "sites": cmd_sites}
+def cmd_lsr(args, console: Console) -> int:
+    site = load_site(args.site)
+    if args.output is not None:
+        check_writable(args.output, args.force)
+    target = _sky_target(args)
+    if args.time and (args.start or args.days):
+        raise UserError("give --time, or --start with --days, not both")
+    if args.time:
+        mjd = np.array([parse_instant(args.time, "--time")])
+    elif args.start or args.days:
+        args.days = args.days or 1
+        start_mjd, end_mjd = _period(args, site)
+        mjd = np.arange(start_mjd, end_mjd + 1e-9, args.step / 1440.0)
+    else:
+        mjd = np.array([datetime_to_mjd_utc(datetime.now(timezone.utc))])
+    if target is None:
+        pointing = _pointing(args, site)
+        track = track_mjd(site, pointing, mjd)
+        ra, dec = track.ra_deg, track.dec_deg
+        what = f"parked beam: elevation {pointing.alt_deg:.2f} deg, azimuth {pointing.az_deg:.1f} deg"
+    else:
+        ra, dec = np.full(mjd.shape, target[0]), np.full(mjd.shape, target[1])
+        what = f"ICRS RA {target[0]:.4f} deg, Dec {target[1]:+.4f} deg"
+    corr = velocity_corrections(site.latitude_deg, site.longitude_deg, site.height_m, ra, dec, mjd,
+                                args.lsr_def)
+    doc = lsr_document(site, what, args.lsr_def, mjd, ra, dec, corr.lsr_corr_kms, corr.bary_corr_kms)
+    if args.format == "json":
+        _emit(args, console, to_json(doc))
+    elif args.format == "csv":
+        _emit(args, console, to_csv(doc["samples"], LSR_FIELDS))
+    else:
+        _emit(args, console, None, lsr_renderable(doc))
+    return 0
+
+
+def cmd_tune(args, console: Console) -> int:
+    site = load_site(args.site)
+    if args.output is not None:
+        check_writable(args.output, args.force)
+    overrides = {k: v for k, v in (("dispersion_kms", args.dispersion),
+                                   ("disc_radius_kpc", args.disc_radius)) if v is not None}
+    model = model_from_name(args.rotation, **overrides)
+    start_mjd, end_mjd = _period(args, site)
+    band = site.rules.band_deg if args.band is None else args.band
+    target = _sky_target(args)
+    factor = 2.0 if args.switched else 1.0
+    if target is None:
+        pointing = _pointing(args, site)
+        search = search_passages_mjd(site, pointing, start_mjd, end_mjd, band,
+                                     solar_motion=args.lsr_def)
+        usable = [p for p in search.passages if p.sun_ok]
+        if not usable:
+            why = ("the beam never comes within the band of the plane" if not search.passages
+                   else "every passage is too close to the Sun")
+            raise UserError(f"nothing to tune for: {why} in this period")
+        bins = sorted({b for p in usable for b in p.l_bins})
+        setup = line_setup(bins, site.rules.bin_width_deg, band,
+                           min(p.lsr_corr_min_kms for p in usable),
+                           max(p.lsr_corr_max_kms for p in usable), site.receiver, model)
+        depth = drift_depth(usable, end_mjd - start_mjd, site.receiver, args.target_rms, factor)
+        doc = tune_document(site, setup, model, args.lsr_def, start_mjd, end_mjd,
+                            pointing=pointing, band_deg=band, l_bins=bins, depth=depth,
+                            drift_s=float(drift_time_s(site.dish.beamwidth_deg, pointing.dec_deg)))
+    else:
+        ra, dec = target
+        mjd = np.arange(start_mjd, end_mjd + 1e-9, 1.0 / 144)  # every 10 minutes
+        corr = velocity_corrections(site.latitude_deg, site.longitude_deg, site.height_m,
+                                    ra, dec, mjd, args.lsr_def).lsr_corr_kms
+        l_deg, b_deg = icrs_to_galactic_deg(ra, dec)
+        env = hi_velocity_envelope(l_deg, b_deg, model)
+        advice = tuning_advice(float(env.v_min_kms), float(env.v_max_kms), float(corr.min()),
+                               float(corr.max()), site.receiver)
+        setup = LineSetup(float(env.v_min_kms), float(env.v_max_kms), float(corr.min()),
+                          float(corr.max()), advice)
+        pointed = None
+        if args.minutes:
+            rms = float(radiometer_rms_k(site.receiver.tsys_k, site.receiver.channel_width_khz * 1e3,
+                                         args.minutes * 60.0, factor))
+            pointed = {"minutes": args.minutes, "rms_k": rms,
+                       "repeats_to_target": (int(np.ceil(days_to_reach(rms, args.target_rms)))
+                                             if args.target_rms else None)}
+        doc = tune_document(site, setup, model, args.lsr_def, start_mjd, end_mjd,
+                            target=(ra, dec, float(l_deg), float(b_deg)), pointed=pointed)
+    if args.format == "json":
+        _emit(args, console, to_json(doc))
+    else:
+        _emit(args, console, None, tune_renderable(doc))
+    return 0
+
+
+DEMO_START = "2027-03-01"  # a fixed month, across the UK clock change on 28 March
+DEMO_DAYS = 31
+
+
+def cmd_demo(args, console: Console) -> int:
+    """Run each job on the example sites and write the results under --output-dir."""
+    from rich.progress import Progress, SpinnerColumn, TextColumn
+    out = args.output_dir
+    try:
+        out.mkdir(parents=True, exist_ok=True)
+    except OSError as exc:
+        raise UserError(f"--output-dir {out}: cannot create folder ({exc.strerror})") from None
+    steps = [
+        ("crossings-hollowmere.json", ["crossings", "--site", "hollowmere", "--format", "json"]),
+        ("crossings-hollowmere.csv", ["crossings", "--site", "hollowmere", "--format", "csv"]),
+        ("crossings-hollowmere.txt", ["crossings", "--site", "hollowmere"]),
+        ("tune-hollowmere.json", ["tune", "--site", "hollowmere", "--format", "json",
+                                  "--target-rms", "0.05"]),
+        ("tune-hollowmere.txt", ["tune", "--site", "hollowmere", "--target-rms", "0.05"]),
+        ("crossings-saltbush-ridge.json", ["crossings", "--site", "saltbush-ridge", "--format", "json"]),
+        ("lsr-saltbush-ridge.csv", ["lsr", "--site", "saltbush-ridge", "--format", "csv",
+                                    "--days", "1", "--step", "30"]),
+    ]
+    parser = build_parser()
+    written = []
+    with Progress(SpinnerColumn(), TextColumn("{task.description}"), console=Console(stderr=True),
+                  transient=True) as progress:
+        task = progress.add_task("demo", total=len(steps))
+        for name, argv in steps:
+            progress.update(task, description=f"writing {name}")
+            target = out / name
+            sub_args = parser.parse_args(argv + ["--start", DEMO_START, "--days", str(DEMO_DAYS)]
+                                         if "--days" not in argv else argv + ["--start", DEMO_START])
+            sub_args.output, sub_args.force = target, args.force
+            COMMANDS[sub_args.command](sub_args, _quiet_console())
+            written.append(target)
+            progress.advance(task)
+    console.print(f"[bold]Demo written to {out}/[/bold] (period from {DEMO_START}, {DEMO_DAYS} days):")
+    for path in written:
+        console.print(f"  {path}")
+    return 0
+
+
+def _quiet_console() -> Console:
+    return Console(file=open("/dev/null", "w"), width=120)
+
+
+COMMANDS = {"demo": cmd_demo, "crossings": cmd_crossings, "lsr": cmd_lsr, "tune": cmd_tune, "sites": cmd_sites}
 
 
 def main(argv: list[str] | None = None) -> int:

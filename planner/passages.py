@@ -12,7 +12,8 @@ galactic plane (|b| <= band). Method:
    0.25 deg per minute).
 4. The peak is the time of minimum |b| (golden-section search).
 5. Each passage is then re-sampled every ``detail_step_s`` (10 s) for its
-   longitude bins, time per bin, Sun and Moon separation, Sun altitude.
+   longitude bins, time per bin, Sun and Moon separation, Sun altitude and
+   LSR correction range.
 
 A passage cut by the start or end of the period is marked ``clipped`` and
 starts or ends at the period's edge. Times are float MJD (UTC) inside;
@@ -20,11 +21,12 @@ starts or ends at the period's edge. Times are float MJD (UTC) inside;
 """
 from __future__ import annotations
 
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 
 import numpy as np
 from astropy.time import Time
 
+from .doppler import velocity_corrections
 from .avoidance import moon_direction, separation_deg, sun_altitude_deg, sun_direction
 from .earth import EarthNodes, earth_nodes, earth_state, spherical_deg
 from .galactic import ICRS_TO_GALACTIC
@@ -59,7 +61,8 @@ class Passage:
     moon_sep_min_deg: float
     moon_ok: bool
     clipped: bool
-    extras: dict = field(default_factory=dict)  # per-passage values added by later stages
+    lsr_corr_min_kms: float  # LSR correction range over the passage (see doppler)
+    lsr_corr_max_kms: float
 
     @property
     def duration_min(self) -> float:
@@ -155,8 +158,12 @@ def _runs(mask: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
 
 def search_passages_mjd(site: Site, pointing: Pointing, start_mjd: float, end_mjd: float,
                         band_deg: float | None = None, step_s: float = 60.0,
-                        detail_step_s: float = 10.0) -> PassageSearch:
-    """All passages in [start_mjd, end_mjd] (UTC) with |b| <= band_deg."""
+                        detail_step_s: float = 10.0,
+                        solar_motion: str = "standard") -> PassageSearch:
+    """All passages in [start_mjd, end_mjd] (UTC) with |b| <= band_deg.
+
+    ``solar_motion`` names the LSR definition (see ``doppler.SOLAR_MOTIONS``).
+    """
     band = site.rules.band_deg if band_deg is None else float(band_deg)
     n = max(2, int(np.ceil((end_mjd - start_mjd) * SECONDS_PER_DAY / step_s)) + 1)
     grid = np.linspace(start_mjd, end_mjd, n)
@@ -200,14 +207,15 @@ def search_passages_mjd(site: Site, pointing: Pointing, start_mjd: float, end_mj
     # except when the beam crosses the plane twice; then either crossing has |b| = 0).
     peaks, peak_abs_b = _golden_min(lambda t: np.abs(track.b_deg(t)), starts, ends, tol)
     passages = _describe(site, pointing, track, starts, ends, peaks, peak_abs_b, clipped,
-                         detail_step_s)
+                         detail_step_s, solar_motion)
     closest = float(min(abs_b.min(), peak_abs_b.min() if peak_abs_b.size else np.inf,
                         (f_min + band).min() if f_min.size else np.inf))
     return PassageSearch(passages=passages, b_min_abs_deg=closest, band_deg=band,
                          start_mjd=start_mjd, end_mjd=end_mjd)
 
 
-def _describe(site, pointing, track, starts, ends, peaks, peak_abs_b, clipped, detail_step_s):
+def _describe(site, pointing, track, starts, ends, peaks, peak_abs_b, clipped, detail_step_s,
+              solar_motion):
     """Sample every passage finely and reduce to per-passage figures."""
     if starts.size == 0:
         return []
@@ -224,6 +232,9 @@ def _describe(site, pointing, track, starts, ends, peaks, peak_abs_b, clipped, d
     sun_sep = separation_deg(icrs, sun_direction(state))
     moon_sep = separation_deg(icrs, moon_direction(site, state))
     sun_alt = sun_altitude_deg(site, state)
+    ra_deg, dec_deg = spherical_deg(icrs)
+    lsr = velocity_corrections(site.latitude_deg, site.longitude_deg, site.height_m, ra_deg,
+                               dec_deg, mjd, solar_motion, state).lsr_corr_kms
     l_peak, _ = spherical_deg(track.vectors(peaks)[1] @ ICRS_TO_GALACTIC.T)
 
     rules = site.rules
@@ -253,6 +264,7 @@ def _describe(site, pointing, track, starts, ends, peaks, peak_abs_b, clipped, d
             sun_alt_max_deg=sun_alt_max, night=sun_alt_max < 0.0,
             moon_sep_min_deg=moon_min, moon_ok=moon_min >= rules.moon_min_sep_deg,
             clipped=bool(clipped[p]),
+            lsr_corr_min_kms=float(lsr[sl].min()), lsr_corr_max_kms=float(lsr[sl].max()),
         ))
     return passages
 
@@ -268,7 +280,15 @@ def _tidy(value: float) -> float | int:
 
 
 def find_passages(site: Site, pointing: Pointing, start: Time, end: Time,
-                  band_deg: float | None = None) -> PassageSearch:
+                  band_deg: float | None = None, solar_motion: str = "standard") -> PassageSearch:
     """Passages of ``pointing`` between two astropy Times (band in degrees)."""
     return search_passages_mjd(site, pointing, float(to_mjd_utc(start)[0]),
-                               float(to_mjd_utc(end)[0]), band_deg)
+                               float(to_mjd_utc(end)[0]), band_deg, solar_motion=solar_motion)
+
+
+def lsr_range_kms(search: PassageSearch) -> tuple[float, float] | None:
+    """(min, max) LSR correction over all passages of a search, or None without passages."""
+    if not search.passages:
+        return None
+    return (min(p.lsr_corr_min_kms for p in search.passages),
+            max(p.lsr_corr_max_kms for p in search.passages))

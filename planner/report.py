@@ -16,7 +16,7 @@ from rich.console import Group
 from rich.table import Table
 from rich.text import Text
 
-from .passages import Passage, PassageSearch
+from .passages import Passage, PassageSearch, lsr_range_kms
 from .pointing import Pointing
 from .site import Site
 from .timebase import iso_local, iso_utc, mjd_to_datetime_utc
@@ -28,7 +28,7 @@ PASSAGE_FIELDS = (
     "start_utc", "end_utc", "peak_utc", "start_local", "end_local", "peak_local",
     "duration_min", "l_start_deg", "l_peak_deg", "l_end_deg", "b_min_abs_deg", "l_bins",
     "bin_seconds", "alt_deg", "az_deg", "sun_sep_min_deg", "sun_ok", "sun_alt_max_deg",
-    "night", "moon_sep_min_deg", "moon_ok", "clipped",
+    "night", "moon_sep_min_deg", "moon_ok", "clipped", "lsr_corr_min_kms", "lsr_corr_max_kms",
 )
 
 
@@ -56,20 +56,24 @@ def passage_record(p: Passage, tz: ZoneInfo) -> dict:
         "sun_alt_max_deg": round(p.sun_alt_max_deg, 2), "night": p.night,
         "moon_sep_min_deg": round(p.moon_sep_min_deg, 2), "moon_ok": p.moon_ok,
         "clipped": p.clipped,
+        "lsr_corr_min_kms": round(p.lsr_corr_min_kms, 3),
+        "lsr_corr_max_kms": round(p.lsr_corr_max_kms, 3),
     }
-    rec.update(p.extras)
     return rec
 
 
 def crossings_document(site: Site, pointing: Pointing, search: PassageSearch) -> dict:
     """The ``hiplan crossings`` result as a JSON-ready document."""
     tz = site.tz
+    rng = lsr_range_kms(search)
     return {
         "schema": CROSSINGS_SCHEMA,
         "site": site.summary(),
         "pointing": pointing.summary(site.dish.beamwidth_deg, search.band_deg),
         "period": period_summary(search.start_mjd, search.end_mjd, tz),
         "closest_b_abs_deg": round(search.b_min_abs_deg, 3),
+        "lsr_corr_min_kms": None if rng is None else round(rng[0], 3),
+        "lsr_corr_max_kms": None if rng is None else round(rng[1], 3),
         "passages": [passage_record(p, tz) for p in search.passages],
     }
 
@@ -148,9 +152,7 @@ def crossings_renderable(site: Site, pointing: Pointing, search: PassageSearch):
             notes.append("Moon close")
         if p.clipped:
             notes.append("clipped")
-        lsr = ""
-        if "lsr_corr_min_kms" in p.extras:
-            lsr = f"{p.extras['lsr_corr_min_kms']:+.1f}…{p.extras['lsr_corr_max_kms']:+.1f}"
+        lsr = f"{p.lsr_corr_min_kms:+.2f}…{p.lsr_corr_max_kms:+.2f}"
         table.add_row(
             start_local.strftime("%a %d %b"), _clock(p.start_mjd, tz), _clock(p.peak_mjd, tz),
             _clock(p.end_mjd, tz), f"{p.duration_min:.0f}",
@@ -160,6 +162,155 @@ def crossings_renderable(site: Site, pointing: Pointing, search: PassageSearch):
             style="dim" if not p.sun_ok else "",
         )
     all_bins = {b for p in search.passages if p.sun_ok for b in p.l_bins}
+    lo, hi = lsr_range_kms(search)
     foot = Text(f"{len(search.passages)} passages, {blocked} too close to the Sun. "
-                f"Usable longitude bins: {compact_ranges(all_bins)}")
+                f"Usable longitude bins: {compact_ranges(all_bins)}\n"
+                f"LSR correction over the period: {lo:+.2f} to {hi:+.2f} km/s "
+                "(add to topocentric velocity to get LSR velocity)")
     return Group(head, table, foot)
+
+
+# ------------------------------------------------------------------ hiplan lsr
+
+LSR_SCHEMA = "hiplan.lsr/1"
+LSR_FIELDS = ("time_utc", "time_local", "ra_deg", "dec_deg", "l_deg", "b_deg",
+              "lsr_corr_kms", "bary_corr_kms")
+
+
+def lsr_document(site: Site, what: str, lsr_definition: str, mjd, ra_deg, dec_deg,
+                 lsr_kms, bary_kms) -> dict:
+    """LSR corrections at sample times as a JSON-ready document."""
+    from .galactic import icrs_to_galactic_deg
+    l_deg, b_deg = icrs_to_galactic_deg(ra_deg, dec_deg)
+    tz = site.tz
+    samples = [
+        {"time_utc": iso_utc(t), "time_local": iso_local(t, tz), "ra_deg": round(float(r), 4),
+         "dec_deg": round(float(d), 4), "l_deg": round(float(gl), 4), "b_deg": round(float(gb), 4),
+         "lsr_corr_kms": round(float(v), 4), "bary_corr_kms": round(float(w), 4)}
+        for t, r, d, gl, gb, v, w in zip(mjd, ra_deg, dec_deg, l_deg, b_deg, lsr_kms, bary_kms)
+    ]
+    return {
+        "schema": LSR_SCHEMA, "site": site.summary(), "position": what,
+        "lsr_definition": lsr_definition,
+        "sign_convention": "lsr_corr_kms is added to a topocentric radial velocity to give the "
+                           "LSR velocity; positive when the observer moves toward the position",
+        "samples": samples,
+    }
+
+
+def lsr_renderable(doc: dict):
+    head = Text()
+    head.append(doc["site"]["name"], style="bold")
+    head.append(f"\n{doc['position']}; LSR definition: {doc['lsr_definition']}\n")
+    head.append(doc["sign_convention"], style="dim")
+    table = Table(box=box.SIMPLE_HEAD, header_style="bold", pad_edge=False)
+    for name in ("Local time", "UTC", "RA °", "Dec °", "l °", "b °", "LSR corr km/s", "Bary corr km/s"):
+        table.add_column(name, justify="right", no_wrap=True)
+    for s in doc["samples"]:
+        table.add_row(s["time_local"][:16].replace("T", " "), s["time_utc"][11:16],
+                      f"{s['ra_deg']:.2f}", f"{s['dec_deg']:+.2f}", f"{s['l_deg']:.2f}",
+                      f"{s['b_deg']:+.2f}", f"{s['lsr_corr_kms']:+.3f}", f"{s['bary_corr_kms']:+.3f}")
+    return Group(head, table)
+
+
+# ----------------------------------------------------------------- hiplan tune
+
+TUNE_SCHEMA = "hiplan.tune/1"
+
+
+def _round_floats(obj, digits=4):
+    if isinstance(obj, float):
+        return round(obj, digits)
+    if isinstance(obj, dict):
+        return {k: _round_floats(v, digits) for k, v in obj.items()}
+    if isinstance(obj, (list, tuple)):
+        return [_round_floats(v, digits) for v in obj]
+    return obj
+
+
+def tune_document(site: Site, setup, model, lsr_definition: str, start_mjd: float, end_mjd: float,
+                  pointing: Pointing | None = None, band_deg: float | None = None, l_bins=None,
+                  depth=None, drift_s: float | None = None, target=None, pointed=None) -> dict:
+    """Receiver set-up advice as a JSON-ready document (frequencies MHz, velocities km/s)."""
+    from dataclasses import asdict
+    advice = asdict(setup.advice)
+    doc = {
+        "schema": TUNE_SCHEMA,
+        "site": site.summary(),
+        "period": period_summary(start_mjd, end_mjd, site.tz),
+        "rotation_model": asdict(model),
+        "lsr_definition": lsr_definition,
+        "hi_rest_mhz": 1420.405751768,
+        "envelope": {"v_lsr_min_kms": setup.v_lsr_min_kms, "v_lsr_max_kms": setup.v_lsr_max_kms},
+        "lsr_corr_min_kms": setup.lsr_corr_min_kms,
+        "lsr_corr_max_kms": setup.lsr_corr_max_kms,
+        "tuning": advice,
+    }
+    if pointing is not None:
+        doc["pointing"] = pointing.summary(site.dish.beamwidth_deg, band_deg)
+        doc["l_bins"] = list(l_bins)
+        doc["l_ranges"] = compact_ranges(l_bins)
+        doc["sensitivity"] = {
+            "equation": "sigma = k Tsys / sqrt(channel_width * time) (Dicke 1946)",
+            "drift_time_through_beam_s": drift_s,
+            "bins": [{"l_bin": d.l_bin, "seconds_per_day": d.seconds_per_day,
+                      "rms_per_day_k": d.rms_per_day_k, "days_to_target": d.days_to_target}
+                     for d in depth],
+        }
+    if target is not None:
+        ra, dec, l, b = target
+        doc["target"] = {"ra_deg": ra, "dec_deg": dec, "l_deg": l, "b_deg": b}
+        if pointed is not None:
+            doc["sensitivity"] = {"equation": "sigma = k Tsys / sqrt(channel_width * time) (Dicke 1946)",
+                                  **pointed}
+    return _round_floats(doc)
+
+
+def tune_renderable(doc: dict):
+    t = doc["tuning"]
+    head = Text()
+    head.append(doc["site"]["name"], style="bold")
+    if "pointing" in doc:
+        p = doc["pointing"]
+        head.append(f"\nParked beam: elevation {p['alt_deg']:.2f}°, azimuth {p['az_deg']:.1f}°, "
+                    f"Dec {p['dec_deg']:+.2f}°; longitudes {doc['l_ranges']}")
+    else:
+        g = doc["target"]
+        head.append(f"\nPosition: l {g['l_deg']:.2f}°, b {g['b_deg']:+.2f}° "
+                    f"(RA {g['ra_deg']:.3f}°, Dec {g['dec_deg']:+.3f}°)")
+    head.append(f"\nPeriod {doc['period']['start_local'][:10]} – {doc['period']['end_local'][:10]}, "
+                f"LSR definition {doc['lsr_definition']}, rotation model r0 "
+                f"{doc['rotation_model']['r0_kpc']} kpc, Θ0 {doc['rotation_model']['theta0_kms']} km/s")
+    table = Table(box=box.SIMPLE_HEAD, show_header=False, pad_edge=False)
+    table.add_column("what", style="bold")
+    table.add_column("value")
+    env = doc["envelope"]
+    rows = [
+        ("Receiver centre", f"{t['centre_mhz']:.6f} MHz"),
+        ("HI velocities (LSR)", f"{env['v_lsr_min_kms']:+.1f} to {env['v_lsr_max_kms']:+.1f} km/s"),
+        ("LSR correction", f"{doc['lsr_corr_min_kms']:+.2f} to {doc['lsr_corr_max_kms']:+.2f} km/s"),
+        ("Line on the sky", f"{t['line_low_mhz']:.4f} – {t['line_high_mhz']:.4f} MHz "
+                            f"({t['line_span_mhz'] * 1e3:.0f} kHz)"),
+        ("Usable band", f"{t['usable_bandwidth_mhz']:.3f} of {t['bandwidth_mhz']:.3f} MHz"),
+        ("Fits", ("yes" if t["fits"] else "NO") + f", margin {t['margin_mhz'] * 1e3:+.0f} kHz"),
+        ("Centre spike", "clear of the line" if t["spike_clear"] else
+         f"inside the line at {t['spike_v_lsr_min_kms']:+.1f}…{t['spike_v_lsr_max_kms']:+.1f} km/s"),
+        ("Channel", f"{t['channel_width_khz']:.3f} kHz = {t['channel_width_kms']:.3f} km/s"),
+    ]
+    sens = doc.get("sensitivity")
+    if sens and "bins" in sens and sens["bins"]:
+        rms = sorted(b["rms_per_day_k"] for b in sens["bins"])
+        rows.append(("Drift through beam", f"{sens['drift_time_through_beam_s'] / 60:.1f} min"))
+        rows.append(("Noise per bin per day", f"{rms[0]:.3f} – {rms[-1]:.3f} K "
+                                               f"(median {rms[len(rms) // 2]:.3f} K)"))
+        need = [b["days_to_target"] for b in sens["bins"] if b["days_to_target"] is not None]
+        if need:
+            rows.append(("Days to target rms", f"{min(need):.0f} – {max(need):.0f} days"))
+    elif sens and "rms_k" in sens:
+        rows.append(("Noise per pointing", f"{sens['rms_k']:.3f} K in {sens['minutes']:g} min"))
+        if sens.get("repeats_to_target"):
+            rows.append(("Repeats to target rms", f"{sens['repeats_to_target']}"))
+    for k, v in rows:
+        table.add_row(k, v)
+    notes = Text("\n".join(t["notes"]), style="dim")
+    return Group(head, table, notes)
