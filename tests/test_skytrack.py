@@ -3,7 +3,7 @@ import dataclasses
 
 import numpy as np
 import astropy.units as u
-from astropy.coordinates import AltAz, EarthLocation, Galactic, SkyCoord
+from astropy.coordinates import AltAz, EarthLocation, Galactic, SkyCoord, get_sun
 from astropy.time import Time
 
 from planner.earth import earth_state
@@ -26,7 +26,7 @@ def _location(site):
 
 
 def test_random_pointings_match_astropy(club, rng):
-    worst = 0.0
+    worst = worst_far = 0.0
     for _ in range(12):  # 12 sites x 40 times x random pointings: ~500 comparisons
         site = _random_site(club, rng)
         pointing = from_altaz(site, rng.uniform(5, 89.9), rng.uniform(0, 360))
@@ -39,10 +39,14 @@ def test_random_pointings_match_astropy(club, rng):
         sep_gal = SkyCoord(ours.l_deg * u.deg, ours.b_deg * u.deg, frame="galactic").separation(gal)
         sep_icrs = SkyCoord(ours.ra_deg * u.deg, ours.dec_deg * u.deg).separation(ref.icrs)
         worst = max(worst, sep_gal.deg.max(), sep_icrs.deg.max())
-    # Required 0.01 deg; the engine's neglected terms (polar motion, light deflection,
-    # second-order aberration) add up to ~1 arcsec, so anything near the limit is a bug.
-    assert worst < 0.01
-    assert worst < 2 / 3600, f"worst {worst * 3600:.2f} arcsec"
+        # Away from the Sun (where astropy applies light deflection, up to 1.75 arcsec at
+        # the limb, which we neglect) the neglected terms add up to well under 1 arcsec.
+        sun = get_sun(frame.obstime)
+        sun = SkyCoord(sun.ra, sun.dec)  # direction only; a 5 deg cut needs no parallax
+        far = SkyCoord(ours.ra_deg * u.deg, ours.dec_deg * u.deg).separation(sun).deg > 5
+        worst_far = max(worst_far, sep_icrs.arcsec[far].max(initial=0))
+    assert worst < 0.01  # the requirement
+    assert worst_far < 1.0, f"worst {worst_far:.2f} arcsec away from the Sun"
 
 
 def test_icrs_to_altaz_matches_astropy(club, rng):
