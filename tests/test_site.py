@@ -1,6 +1,5 @@
 """Site files: the bundled examples, derived beamwidth, lookup, and every kind of bad field."""
 import tomllib
-from pathlib import Path
 
 import pytest
 

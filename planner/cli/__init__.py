@@ -1,0 +1,53 @@
+"""Command-line interface: ``hiplan <command> ...``.
+
+Each command is a module in this package (``NAME``, ``HELP``, ``add_arguments``,
+``run``); this file builds the parser and turns ``UserError`` into one line on
+stderr with exit status 2. Nothing is written when a command fails.
+"""
+from __future__ import annotations
+
+import argparse
+import logging
+import sys
+
+from rich.console import Console
+
+from .. import __version__
+from ..errors import UserError
+from . import crossings, demo, lsr, sites, tune
+from .common import Parser
+
+COMMAND_MODULES = (demo, crossings, lsr, tune, sites)
+COMMANDS = {m.NAME: m.run for m in COMMAND_MODULES}
+
+
+def build_parser() -> argparse.ArgumentParser:
+    parser = Parser(prog="hiplan", description="Plan 21-cm HI observations for small radio telescopes.")
+    parser.add_argument("--version", action="version", version=f"hiplan {__version__}")
+    parser.add_argument("--verbose", "-v", action="store_true", help="log notes (e.g. IERS table end)")
+    sub = parser.add_subparsers(dest="command", metavar="COMMAND", parser_class=Parser)
+    for module in COMMAND_MODULES:
+        module.add_arguments(sub.add_parser(module.NAME, help=module.HELP))
+    return parser
+
+
+def main(argv: list[str] | None = None) -> int:
+    """Entry point of the ``hiplan`` console script; returns the exit status."""
+    # Piped output gets a fixed width so tables are not squeezed to 80 columns.
+    console = Console() if sys.stdout.isatty() else Console(width=120)
+    err = Console(stderr=True)
+    try:
+        parser = build_parser()
+        args = parser.parse_args(argv)
+        logging.basicConfig(level=logging.INFO if args.verbose else logging.WARNING,
+                            format="hiplan: note: %(message)s")
+        if not args.command:
+            parser.print_help()
+            return 2
+        return COMMANDS[args.command](args, console)
+    except UserError as exc:
+        err.print(f"hiplan: error: {exc}", markup=False, highlight=False, soft_wrap=True)
+        return 2
+    except KeyboardInterrupt:
+        err.print("hiplan: interrupted", markup=False)
+        return 130

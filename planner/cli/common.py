@@ -1,0 +1,174 @@
+"""Shared pieces of the command line: option groups, pointing/period resolution, output.
+
+Every command module in this package has ``NAME``, ``HELP``, ``add_arguments(parser)``
+and ``run(args, console) -> int``. User mistakes raise ``UserError``.
+"""
+from __future__ import annotations
+
+import argparse
+import sys
+from datetime import date, datetime
+from pathlib import Path
+
+from rich.console import Console
+
+from ..errors import UserError
+from ..galactic import galactic_to_icrs_deg
+from ..outputs import write_atomic
+from ..pointing import (Pointing, from_altaz, from_hadec, on_meridian_at_dec,
+                        on_meridian_at_elevation, require_reachable)
+from ..site import Site
+from ..timebase import local_day_span, parse_day
+
+MAX_DAYS = 731  # two years: longer plans are almost surely a typo and slow
+
+
+class Parser(argparse.ArgumentParser):
+    """argparse with one-line errors (no usage dump) and exit status 2."""
+
+    def error(self, message: str):  # noqa: D401 - argparse API
+        raise UserError(f"{message} (see '{self.prog} --help')")
+
+
+def number(kind, name, lo=None, hi=None, lo_open=False, hi_open=False):
+    """argparse type: a number within a range, with an error naming the option."""
+    def convert(text: str):
+        try:
+            value = kind(text)
+        except ValueError:
+            raise argparse.ArgumentTypeError(f"{name}: '{text}' is not a number") from None
+        if value != value or value in (float("inf"), float("-inf")):
+            raise argparse.ArgumentTypeError(f"{name}: '{text}' is not a finite number")
+        bad_lo = lo is not None and (value <= lo if lo_open else value < lo)
+        bad_hi = hi is not None and (value >= hi if hi_open else value > hi)
+        if bad_lo or bad_hi:
+            left = "(" if lo_open else "["
+            right = ")" if hi_open else "]"
+            raise argparse.ArgumentTypeError(f"{name}: {value} is outside {left}{lo}, {hi}{right}")
+        return value
+    return convert
+
+
+def add_site(p):
+    p.add_argument("--site", help="site file path or name in sites/ (default: the bundled example)")
+
+
+def add_output(p, formats=("table", "json", "csv")):
+    p.add_argument("--format", choices=formats, default=formats[0], help="output format")
+    p.add_argument("--output", "-o", type=Path, help="write to this file instead of the terminal")
+    p.add_argument("--force", action="store_true", help="replace an existing output file")
+
+
+def add_period(p, default_days: int):
+    p.add_argument("--start", help="first local day YYYY-MM-DD (default: today at the site)")
+    p.add_argument("--days", type=number(int, "--days", 1, MAX_DAYS), default=default_days,
+                   help=f"number of days (default {default_days})")
+
+
+def add_pointing(p):
+    g = p.add_argument_group("pointing (default: the site file's [pointing])")
+    g.add_argument("--dec", type=number(float, "--dec", -90, 90),
+                   help="declination of date (deg); on the meridian unless --ha is given")
+    g.add_argument("--ha", type=number(float, "--ha", -180, 180),
+                   help="hour angle (deg, west positive), with --dec")
+    g.add_argument("--elevation", type=number(float, "--elevation", 0, 90),
+                   help="elevation on the meridian (deg)")
+    g.add_argument("--facing", choices=("north", "south"), help="meridian side for --elevation")
+    g.add_argument("--alt", type=number(float, "--alt", 0, 90), help="elevation (deg), with --az")
+    g.add_argument("--az", type=number(float, "--az", 0, 360, hi_open=True),
+                   help="azimuth from north through east (deg), with --alt")
+
+
+def add_target(p):
+    g = p.add_argument_group("sky position (instead of a parked pointing)")
+    g.add_argument("--ra", type=number(float, "--ra", 0, 360, hi_open=True),
+                   help="ICRS right ascension (deg), with --dec; --dec alone means a parked beam")
+    g.add_argument("--l", type=number(float, "--l", 0, 360), help="galactic longitude (deg), with --b")
+    g.add_argument("--b", type=number(float, "--b", -90, 90), help="galactic latitude (deg), with --l")
+
+
+def add_lsr_definition(p):
+    p.add_argument("--lsr-def", default="standard", choices=("standard", "dynamical", "schoenrich2010"),
+                   help="solar motion defining the LSR (default: standard kinematic LSR)")
+
+
+def resolve_pointing(args, site: Site) -> Pointing:
+    """Resolve the pointing options (or the site default) into a reachable Pointing."""
+    alt_az = args.alt is not None or args.az is not None
+    if alt_az and (args.alt is None or args.az is None):
+        raise UserError("--alt and --az must be given together")
+    given = [name for name, on in (("--dec", args.dec is not None), ("--elevation", args.elevation is not None),
+                                   ("--alt/--az", alt_az)) if on]
+    if len(given) > 1:
+        raise UserError(f"give one pointing, not {' and '.join(given)}")
+    if args.ha is not None and args.dec is None:
+        raise UserError("--ha needs --dec")
+    if args.facing and args.elevation is None:
+        raise UserError("--facing only goes with --elevation")
+    if args.dec is not None:
+        pointing = (from_hadec(site, args.ha, args.dec) if args.ha is not None
+                    else on_meridian_at_dec(site, args.dec))
+    elif args.elevation is not None:
+        pointing = on_meridian_at_elevation(site, args.elevation, args.facing)
+    elif alt_az:
+        pointing = from_altaz(site, args.alt, args.az)
+    elif "alt_deg" in site.default_pointing:
+        pointing = from_altaz(site, site.default_pointing["alt_deg"], site.default_pointing["az_deg"])
+    elif "dec_deg" in site.default_pointing:
+        pointing = on_meridian_at_dec(site, site.default_pointing["dec_deg"])
+    else:
+        raise UserError(f"no pointing: give --dec, --elevation or --alt/--az "
+                        f"(or add [pointing] to {site.source})")
+    return require_reachable(site, pointing)
+
+
+def sky_target(args) -> tuple[float, float] | None:
+    """(ra, dec) ICRS in degrees from --ra/--dec or --l/--b, or None for a parked beam."""
+    if (args.l is None) != (args.b is None):
+        raise UserError("--l and --b must be given together")
+    if args.ra is not None and args.dec is None:
+        raise UserError("--ra needs --dec")
+    if args.l is not None:
+        if args.ra is not None:
+            raise UserError("give --ra/--dec or --l/--b, not both")
+        ra, dec = galactic_to_icrs_deg(args.l, args.b)
+        return float(ra), float(dec)
+    if args.ra is not None:
+        return float(args.ra), float(args.dec)
+    return None
+
+
+def period_span(args, site: Site) -> tuple[float, float]:
+    start = parse_day(args.start, "--start") if args.start else today_at(site)
+    return local_day_span(start, args.days, site.tz)
+
+
+def today_at(site: Site) -> date:
+    return datetime.now(site.tz).date()
+
+
+def emit(args, console: Console, text: str | None, renderable=None) -> None:
+    """Write ``text`` to --output atomically, or print it / the rich renderable."""
+    if args.output is not None:
+        write_atomic(args.output, text if text is not None else plain_text(renderable), args.force)
+        if console.file is sys.stdout:
+            Console(stderr=True).print(f"wrote {args.output}")
+    elif renderable is not None:
+        console.print(renderable)
+    else:
+        sys.stdout.write(text)
+
+
+def plain_text(renderable) -> str:
+    cap = Console(width=160, record=True, file=open("/dev/null", "w"), color_system=None)
+    cap.print(renderable)
+    return cap.export_text()
+
+
+# ----------------------------------------------------------------- commands
+
+
+
+def quiet_console() -> Console:
+    """A console that discards output (for commands run inside the demo)."""
+    return Console(file=open("/dev/null", "w"), width=120)

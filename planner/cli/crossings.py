@@ -1,0 +1,41 @@
+"""``hiplan crossings``: galactic-plane passages of a parked beam."""
+from __future__ import annotations
+
+from rich.console import Console
+
+from ..outputs import check_writable
+from ..passages import search_passages_mjd
+from ..report import PASSAGE_FIELDS, crossings_document, crossings_renderable, to_csv, to_json
+from ..site import load_site
+from .common import (add_output, add_period, add_pointing, add_site, emit, number, period_span,
+                     resolve_pointing)
+
+NAME = "crossings"
+HELP = "when a parked beam crosses the galactic plane"
+
+
+def add_arguments(p) -> None:
+    add_site(p)
+    add_pointing(p)
+    add_period(p, default_days=7)
+    p.add_argument("--band", type=number(float, "--band", 0, 90, lo_open=True, hi_open=True),
+                   help="half-width of the |b| strip (deg; default from the site rules)")
+    add_output(p)
+
+
+def run(args, console: Console) -> int:
+    site = load_site(args.site)
+    if args.output is not None:
+        check_writable(args.output, args.force)
+    pointing = resolve_pointing(args, site)
+    start_mjd, end_mjd = period_span(args, site)
+    search = search_passages_mjd(site, pointing, start_mjd, end_mjd, args.band)
+    if args.format == "table":
+        emit(args, console, None, crossings_renderable(site, pointing, search))
+    else:
+        doc = crossings_document(site, pointing, search)
+        text = to_json(doc) if args.format == "json" else to_csv(doc["passages"], PASSAGE_FIELDS)
+        emit(args, console, text)
+    return 0
+
+

@@ -1,0 +1,102 @@
+"""``hiplan tune``: where to tune the receiver, whether the line fits, expected noise."""
+from __future__ import annotations
+
+import numpy as np
+from rich.console import Console
+
+from ..doppler import velocity_corrections
+from ..errors import UserError
+from ..galactic import icrs_to_galactic_deg
+from ..galaxy import hi_velocity_envelope, model_from_name
+from ..outputs import check_writable
+from ..passages import search_passages_mjd
+from ..report import to_json, tune_document, tune_renderable
+from ..sensitivity import days_to_reach, drift_time_s, radiometer_rms_k
+from ..site import load_site
+from ..spectral import tuning_advice
+from ..tuning import LineSetup, drift_depth, line_setup
+from .common import (add_lsr_definition, add_output, add_period, add_pointing, add_site, add_target,
+                     emit, number, period_span, resolve_pointing, sky_target)
+
+NAME = "tune"
+HELP = "receiver centre frequency, band fit and expected noise"
+
+
+def add_arguments(p) -> None:
+    add_site(p)
+    add_target(p)
+    add_pointing(p)
+    add_period(p, default_days=30)
+    p.add_argument("--band", type=number(float, "--band", 0, 90, lo_open=True, hi_open=True),
+                   help="half-width of the |b| strip (deg; default from the site rules)")
+    p.add_argument("--rotation", default="iau1985",
+                   help="rotation model: iau1985 (default), reid2014, reid2019, brand-blitz1993")
+    p.add_argument("--dispersion", type=number(float, "--dispersion", 0, 100),
+                   help="velocity margin added to the envelope (km/s; default 10)")
+    p.add_argument("--disc-radius", type=number(float, "--disc-radius", 0, 100, lo_open=True),
+                   help="outer radius of the HI disc (kpc; default 25)")
+    p.add_argument("--minutes", type=number(float, "--minutes", 0, 1e5, lo_open=True),
+                   help="pointed integration time per position (minutes)")
+    p.add_argument("--target-rms", type=number(float, "--target-rms", 0, 1e3, lo_open=True),
+                   help="noise level wanted per channel (K): report the days needed")
+    p.add_argument("--switched", action="store_true",
+                   help="frequency/position switching: noise factor 2 instead of 1")
+    add_lsr_definition(p)
+    add_output(p, formats=("table", "json"))
+
+
+def run(args, console: Console) -> int:
+    site = load_site(args.site)
+    if args.output is not None:
+        check_writable(args.output, args.force)
+    overrides = {k: v for k, v in (("dispersion_kms", args.dispersion),
+                                   ("disc_radius_kpc", args.disc_radius)) if v is not None}
+    model = model_from_name(args.rotation, **overrides)
+    start_mjd, end_mjd = period_span(args, site)
+    band = site.rules.band_deg if args.band is None else args.band
+    target = sky_target(args)
+    factor = 2.0 if args.switched else 1.0
+    if target is None:
+        pointing = resolve_pointing(args, site)
+        search = search_passages_mjd(site, pointing, start_mjd, end_mjd, band,
+                                     solar_motion=args.lsr_def)
+        usable = [p for p in search.passages if p.sun_ok]
+        if not usable:
+            why = ("the beam never comes within the band of the plane" if not search.passages
+                   else "every passage is too close to the Sun")
+            raise UserError(f"nothing to tune for: {why} in this period")
+        bins = sorted({b for p in usable for b in p.l_bins})
+        setup = line_setup(bins, site.rules.bin_width_deg, band,
+                           min(p.lsr_corr_min_kms for p in usable),
+                           max(p.lsr_corr_max_kms for p in usable), site.receiver, model)
+        depth = drift_depth(usable, end_mjd - start_mjd, site.receiver, args.target_rms, factor)
+        doc = tune_document(site, setup, model, args.lsr_def, start_mjd, end_mjd,
+                            pointing=pointing, band_deg=band, l_bins=bins, depth=depth,
+                            drift_s=float(drift_time_s(site.dish.beamwidth_deg, pointing.dec_deg)))
+    else:
+        ra, dec = target
+        mjd = np.arange(start_mjd, end_mjd + 1e-9, 1.0 / 144)  # every 10 minutes
+        corr = velocity_corrections(site.latitude_deg, site.longitude_deg, site.height_m,
+                                    ra, dec, mjd, args.lsr_def).lsr_corr_kms
+        l_deg, b_deg = icrs_to_galactic_deg(ra, dec)
+        env = hi_velocity_envelope(l_deg, b_deg, model)
+        advice = tuning_advice(float(env.v_min_kms), float(env.v_max_kms), float(corr.min()),
+                               float(corr.max()), site.receiver)
+        setup = LineSetup(float(env.v_min_kms), float(env.v_max_kms), float(corr.min()),
+                          float(corr.max()), advice)
+        pointed = None
+        if args.minutes:
+            rms = float(radiometer_rms_k(site.receiver.tsys_k, site.receiver.channel_width_khz * 1e3,
+                                         args.minutes * 60.0, factor))
+            pointed = {"minutes": args.minutes, "rms_k": rms,
+                       "repeats_to_target": (int(np.ceil(days_to_reach(rms, args.target_rms)))
+                                             if args.target_rms else None)}
+        doc = tune_document(site, setup, model, args.lsr_def, start_mjd, end_mjd,
+                            target=(ra, dec, float(l_deg), float(b_deg)), pointed=pointed)
+    if args.format == "json":
+        emit(args, console, to_json(doc))
+    else:
+        emit(args, console, None, tune_renderable(doc))
+    return 0
+
+
