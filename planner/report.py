@@ -314,3 +314,85 @@ def tune_renderable(doc: dict):
         table.add_row(k, v)
     notes = Text("\n".join(t["notes"]), style="dim")
     return Group(head, table, notes)
+
+
+# ----------------------------------------------------------------- hiplan park
+
+PARK_SCHEMA = "hiplan.park/1"
+PARK_FIELDS = ("rank", "dec_deg", "elevation_deg", "az_deg", "facing", "l_ranges", "passages_per_day",
+               "passage_times_local", "duration_min", "sun_lost_fraction", "daylight_lost_fraction",
+               "window_lost_fraction", "usable_hours", "lsr_corr_min_kms", "lsr_corr_max_kms",
+               "rms_per_bin_day_k", "needed_bins_served", "score", "reason")
+
+
+def park_document(sweep, advice, want_text: str, target_minutes: float, log_source: str | None,
+                  windows_text: list[str]) -> dict:
+    """Ranked declination advice as a JSON-ready document."""
+    from .park import _facing, compact_bins
+    site = sweep.site
+    rows = []
+    for rank, a in enumerate(advice, start=1):
+        p, c = a.pointing, a.coverage
+        times = ", ".join(a.times_first_day)
+        if a.times_last_day and a.times_last_day != a.times_first_day:
+            times += " → " + ", ".join(a.times_last_day)
+        rows.append({
+            "rank": rank, "dec_deg": round(p.dec_deg, 3), "elevation_deg": round(p.alt_deg, 3),
+            "az_deg": round(p.az_deg, 1), "facing": _facing(p),
+            "l_ranges": compact_bins(a.usable_bins, sweep.bin_width_deg),
+            "l_bins": [_tidy(b * sweep.bin_width_deg) for b in a.usable_bins],
+            "passages_per_day": round(a.passages_per_day, 3), "passage_times_local": times,
+            "duration_min": round(a.duration_min, 1),
+            "sun_lost_fraction": round(c.sun_lost_fraction, 4),
+            "daylight_lost_fraction": round(c.daylight_lost_fraction, 4),
+            "window_lost_fraction": round(c.window_lost_fraction, 4),
+            "usable_hours": round(a.usable_hours, 3),
+            "lsr_corr_min_kms": None if c.lsr_corr_min_kms is None else round(c.lsr_corr_min_kms, 3),
+            "lsr_corr_max_kms": None if c.lsr_corr_max_kms is None else round(c.lsr_corr_max_kms, 3),
+            "rms_per_bin_day_k": None if a.rms_per_bin_day_k is None else round(a.rms_per_bin_day_k, 4),
+            "needed_bins_served": a.needed_bins_served, "score": round(a.score, 3), "reason": a.reason,
+        })
+    return {
+        "schema": PARK_SCHEMA, "site": site.summary(),
+        "period": period_summary(sweep.start_mjd, sweep.end_mjd, site.tz),
+        "settings": {"band_deg": sweep.band_deg, "bin_width_deg": sweep.bin_width_deg,
+                     "want": want_text or "0-360", "target_minutes": target_minutes,
+                     "log": log_source, "night_only": sweep.night_only, "windows": windows_text,
+                     "beamwidth_deg": round(site.dish.beamwidth_deg, 3)},
+        "declinations": rows,
+    }
+
+
+def _tidy(value: float):
+    return int(value) if float(value).is_integer() else float(value)
+
+
+def park_renderable(doc: dict, top: int):
+    s, st = doc["site"], doc["settings"]
+    head = Text()
+    head.append(s["name"], style="bold")
+    head.append(f"  ({s['latitude_deg']:+.2f}°, {s['longitude_deg']:+.2f}°)  "
+                f"{doc['period']['start_local'][:10]} – {doc['period']['end_local'][:10]}\n")
+    head.append(f"Beam {st['beamwidth_deg']:.2f}°, band |b| ≤ {st['band_deg']:g}°, wanted l {st['want']}, "
+                f"target {st['target_minutes']:g} min per bin"
+                + (", night only" if st["night_only"] else "")
+                + (f", windows: {'; '.join(st['windows'])}" if st["windows"] else "")
+                + (f", log {st['log']}" if st["log"] else ""))
+    table = Table(box=box.SIMPLE_HEAD, header_style="bold", pad_edge=False)
+    for name, just in [("#", "right"), ("Dec°", "right"), ("Elev°", "right"), ("Longitudes (usable)", "left"),
+                       ("/day", "right"), ("Starts (local)", "left"), ("Min", "right"), ("Sun lost", "right"),
+                       ("Use h", "right"), ("LSR km/s", "right"), ("K/bin/day", "right"), ("Score", "right")]:
+        table.add_column(name, justify=just, overflow="fold")
+    for r in doc["declinations"][:top]:
+        lsr = ("" if r["lsr_corr_min_kms"] is None
+               else f"{r['lsr_corr_min_kms']:+.0f}…{r['lsr_corr_max_kms']:+.0f}")
+        table.add_row(str(r["rank"]), f"{r['dec_deg']:+.1f}", f"{r['elevation_deg']:.1f}{r['facing'][0].upper()}",
+                      r["l_ranges"], f"{r['passages_per_day']:.1f}", r["passage_times_local"],
+                      f"{r['duration_min']:.0f}", f"{r['sun_lost_fraction']:.0%}", f"{r['usable_hours']:.1f}",
+                      lsr, "" if r["rms_per_bin_day_k"] is None else f"{r['rms_per_bin_day_k']:.3f}",
+                      f"{r['score']:.1f}")
+    reasons = Text()
+    reasons.append("Recommendation\n", style="bold")
+    for r in doc["declinations"][:min(top, 3)]:
+        reasons.append(f"{r['rank']}. {r['reason']}\n")
+    return Group(head, table, reasons)

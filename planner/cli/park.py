@@ -1,0 +1,107 @@
+"""``hiplan park``: at which declination to park a dish, and what it will deliver."""
+from __future__ import annotations
+
+import numpy as np
+from rich.console import Console
+
+from ..coverage import sweep
+from ..errors import UserError
+from ..obslog import coverage_minutes, read_log
+from ..outputs import check_writable, write_atomic
+from ..park import DEFAULT_TARGET_MINUTES, advise, candidate_pointings, parse_want
+from ..report import PARK_FIELDS, park_document, park_renderable, to_csv, to_json
+from ..site import load_site
+from ..windows import never_occurs, read_windows, window_intervals_mjd
+from .common import add_lsr_definition, add_output, add_period, add_site, emit, number, period_span
+
+NAME = "park"
+HELP = "which declination to park a dish at, ranked for your goals"
+
+
+def add_arguments(p) -> None:
+    add_site(p)
+    add_period(p, default_days=30)
+    p.add_argument("--step", type=number(float, "--step", 0, 30, lo_open=True),
+                   help="declination step (deg; default half the beamwidth)")
+    p.add_argument("--band", type=number(float, "--band", 0, 90, lo_open=True, hi_open=True),
+                   help="half-width of the |b| strip (deg; default from the site rules)")
+    p.add_argument("--want", help="wanted longitude ranges, e.g. 30-90,120-140 (default all)")
+    p.add_argument("--log", help="observation log (CSV) of what is already covered")
+    p.add_argument("--target-minutes", type=number(float, "--target-minutes", 0, 1e5, lo_open=True),
+                   default=DEFAULT_TARGET_MINUTES,
+                   help=f"integration wanted per bin (minutes; default {DEFAULT_TARGET_MINUTES:g})")
+    p.add_argument("--night-only", action="store_true", help="count only passages with the Sun down")
+    p.add_argument("--windows", help="operator availability: a file or text like 'Mon-Fri 19:00-23:30'")
+    p.add_argument("--top", type=number(int, "--top", 1, 1000), default=8,
+                   help="declinations shown in the table (default 8; JSON/CSV list all)")
+    p.add_argument("--plot", help="write the coverage atlas here (.png or .svg) and the sky track "
+                                  "of the best declination beside it (<name>-sky.<ext>)")
+    add_lsr_definition(p)
+    add_output(p)
+
+
+def run(args, console: Console) -> int:
+    site = load_site(args.site)
+    if site.dish.mount not in ("transit", "fixed", "altaz"):
+        raise UserError(f"{site.source}: unknown mount")
+    if args.output is not None:
+        check_writable(args.output, args.force)
+    plot_paths = _plot_paths(args.plot, args.force) if args.plot else None
+    start_mjd, end_mjd = period_span(args, site)
+    bw = site.rules.bin_width_deg
+    want = parse_want(args.want, bw)
+    done = np.zeros(want.size)
+    if args.log:
+        done = coverage_minutes(read_log(args.log), bw)
+    intervals, windows_text = None, []
+    if args.windows:
+        avail = read_windows(args.windows)
+        if never_occurs(avail, start_mjd, end_mjd, site.tz):
+            raise UserError(f"--windows: no window falls in the period {args.start or ''} "
+                            f"(+{args.days} days)")
+        intervals = window_intervals_mjd(avail, start_mjd, end_mjd, site.tz)
+        windows_text = avail.describe()
+    pointings = candidate_pointings(site, args.step)
+    if not pointings:
+        raise UserError(f"{site.source}: no declination is reachable with this dish's elevation "
+                        "limits and horizon mask")
+    result = sweep(site, pointings, start_mjd, end_mjd, args.band, args.night_only, intervals,
+                   args.lsr_def)
+    advice = advise(result, want, done, args.target_minutes)
+    doc = park_document(result, advice, args.want, args.target_minutes, args.log, windows_text)
+    if plot_paths:
+        _write_plots(plot_paths, result, advice, want, done, args, site)
+    if args.format == "json":
+        emit(args, console, to_json(doc))
+    elif args.format == "csv":
+        emit(args, console, to_csv(doc["declinations"], PARK_FIELDS))
+    else:
+        emit(args, console, None, park_renderable(doc, args.top))
+    return 0
+
+
+def _plot_paths(plot: str, force: bool):
+    from pathlib import Path
+    atlas = Path(plot)
+    if atlas.suffix.lower() not in (".png", ".svg"):
+        raise UserError(f"--plot: '{plot}' must end in .png or .svg")
+    sky = atlas.with_name(f"{atlas.stem}-sky{atlas.suffix}")
+    for path in (atlas, sky):
+        check_writable(path, force)
+    return atlas, sky
+
+
+def _write_plots(paths, result, advice, want, done, args, site) -> None:
+    """Render the atlas and the best declination's sky track; write them atomically."""
+    from ..plotdata import atlas_figure, sky_figure
+    atlas_path, sky_path = paths
+    for fig, path in ((atlas_figure(result, want, done, args.target_minutes), atlas_path),
+                      (sky_figure(result, advice[0]), sky_path)):
+        write_atomic(path, _figure_bytes(fig, path.suffix.lstrip(".").lower()), args.force)
+
+
+def _figure_bytes(fig, fmt: str) -> bytes:
+    from io import BytesIO
+    buf = BytesIO()
+    fig.savefig(buf, format=fmt, dpi=120, bbox_inches="tight")
+    return buf.getvalue()

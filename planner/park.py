@@ -1,0 +1,177 @@
+"""Declination advice for a parked dish: which declination serves the survey best.
+
+Candidates are meridian pointings (upper culmination) at every declination the
+dish can reach, in steps of half the beamwidth by default. A parked beam sees
+the same declination circle every day whatever its hour angle, so one pointing
+per declination covers the choice (only the time of day differs).
+
+Ranking (``score``): for each wanted longitude bin that still needs
+integration, the fraction of the missing minutes this declination delivers
+in usable passages over the period, capped at 1, summed over bins. A score
+of 12.5 means "worth twelve and a half bins brought to the target depth".
+Ties go to the declination with more usable hours, then the lower declination
+(deterministic).
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from .coverage import DeclinationCoverage, Sweep
+from .errors import UserError
+from .pointing import Pointing, on_meridian_at_dec, reachability_problem
+from .sensitivity import radiometer_rms_k
+from .site import Site
+from .timebase import mjd_to_datetime_utc
+
+DEFAULT_TARGET_MINUTES = 60.0
+
+
+def parse_want(text: str | None, bin_width_deg: float = 1.0, option: str = "--want") -> np.ndarray:
+    """Wanted bins as a bool mask from ``"30-90,120-140"`` (deg, [from, to), may wrap 350-10).
+
+    None or empty text means every longitude.
+    """
+    n_bins = int(round(360.0 / bin_width_deg))
+    if not text or not text.strip():
+        return np.ones(n_bins, bool)
+    mask = np.zeros(n_bins, bool)
+    for part in text.split(","):
+        item = part.strip()
+        pieces = item.split("-")
+        try:
+            if len(pieces) != 2:
+                raise ValueError
+            lo, hi = float(pieces[0]), float(pieces[1])
+        except ValueError:
+            raise UserError(f"{option}: '{item}' is not a longitude range like 30-90") from None
+        if not (0 <= lo <= 360 and 0 <= hi <= 360) or lo == hi:
+            raise UserError(f"{option}: '{item}' must have two different longitudes in 0..360")
+        first = int(np.floor(lo / bin_width_deg + 1e-9))
+        last = int(np.ceil(hi / bin_width_deg - 1e-9))  # exclusive
+        if hi > lo:
+            mask[first:last] = True
+        else:  # wraps through 360
+            mask[first:] = True
+            mask[:last] = True
+    return mask
+
+
+def candidate_pointings(site: Site, step_deg: float | None = None) -> list[Pointing]:
+    """Reachable meridian pointings from dec -90 to +90 in ``step_deg`` (default HPBW/2)."""
+    step = site.dish.beamwidth_deg / 2.0 if step_deg is None else float(step_deg)
+    if not step > 0:
+        raise UserError(f"--step: {step_deg} must be positive")
+    decs = np.arange(-90.0, 90.0 + 1e-9, step)
+    out = []
+    for dec in decs:  # ~100 declinations, each a cheap closed-form check
+        p = on_meridian_at_dec(site, float(np.round(dec, 6)))
+        if reachability_problem(site, p) is None:
+            out.append(p)
+    return out
+
+
+@dataclass(frozen=True)
+class Advice:
+    """One declination's summary and its place in the ranking."""
+
+    coverage: DeclinationCoverage
+    usable_bins: np.ndarray  # bin indices with usable time
+    passages_per_day: float
+    duration_min: float  # mean passage duration
+    times_first_day: tuple[str, ...]  # local HH:MM starts on the first day with passages
+    times_last_day: tuple[str, ...]
+    usable_hours: float
+    rms_per_bin_day_k: float | None  # median over bins with usable time
+    needed_bins_served: int
+    score: float
+    reason: str = ""
+
+    @property
+    def pointing(self) -> Pointing:
+        return self.coverage.pointing
+
+
+def _facing(p: Pointing) -> str:
+    return "zenith" if p.alt_deg > 89.999 else ("south" if abs(p.az_deg - 180.0) < 1e-6 else "north")
+
+
+def _local_times(starts: np.ndarray, site: Site, which: str) -> tuple[str, ...]:
+    if starts.size == 0:
+        return ()
+    tz = site.tz
+    days = np.array([mjd_to_datetime_utc(t).astimezone(tz).date().toordinal() for t in starts])
+    pick = days == (days.min() if which == "first" else days.max())
+    return tuple(mjd_to_datetime_utc(t).astimezone(tz).strftime("%H:%M") for t in starts[pick])
+
+
+def compact_bins(bins, bin_width_deg: float = 1.0) -> str:
+    """Bin indices as compact longitude ranges, e.g. '28–41, 187–196'."""
+    nums = sorted({int(b) for b in bins})
+    if not nums:
+        return "none"
+    parts, lo, prev = [], nums[0], nums[0]
+    for v in nums[1:] + [None]:
+        if v is not None and v == prev + 1:
+            prev = v
+            continue
+        a, b = lo * bin_width_deg, prev * bin_width_deg
+        parts.append(f"{a:g}" if lo == prev else f"{a:g}–{b:g}")
+        if v is not None:
+            lo = prev = v
+    return ", ".join(parts)
+
+
+def advise(sweep: Sweep, want: np.ndarray, done_minutes: np.ndarray,
+           target_minutes: float = DEFAULT_TARGET_MINUTES) -> list[Advice]:
+    """Rank the sweep's declinations for the wanted, still-uncovered bins (best first)."""
+    site = sweep.site
+    days = sweep.end_mjd - sweep.start_mjd
+    need_min = np.where(want, np.maximum(target_minutes - done_minutes, 0.0), 0.0)
+    width_hz = site.receiver.channel_width_khz * 1e3
+    advice = []
+    for row in sweep.rows:  # one per declination
+        occ = row.occurrences
+        usable_min = row.bin_usable_s / 60.0
+        served = np.where(need_min > 0, np.minimum(usable_min / np.where(need_min > 0, need_min, 1), 1), 0)
+        usable_bins = np.flatnonzero(row.bin_usable_s > 0)
+        per_day_s = row.bin_usable_s[usable_bins] / days
+        rms = (float(np.median(radiometer_rms_k(site.receiver.tsys_k, width_hz, per_day_s)))
+               if usable_bins.size else None)
+        starts = np.sort(occ.start_mjd)
+        advice.append(Advice(
+            coverage=row, usable_bins=usable_bins,
+            passages_per_day=occ.start_mjd.size / days,
+            duration_min=float(np.mean(occ.end_mjd - occ.start_mjd) * 1440) if occ.start_mjd.size else 0.0,
+            times_first_day=_local_times(starts, site, "first"),
+            times_last_day=_local_times(starts, site, "last"),
+            usable_hours=float(row.bin_usable_s.sum() / 3600.0), rms_per_bin_day_k=rms,
+            needed_bins_served=int(np.count_nonzero((usable_min > 0) & (need_min > 0))),
+            score=float(served.sum()),
+        ))
+    advice.sort(key=lambda a: (-round(a.score, 6), -round(a.usable_hours, 6), a.pointing.dec_deg))
+    return [_with_reason(a, sweep, need_min) for a in advice]
+
+
+def _with_reason(a: Advice, sweep: Sweep, need_min: np.ndarray) -> Advice:
+    """Attach a one-sentence explanation."""
+    from dataclasses import replace
+    p, row = a.pointing, a.coverage
+    head = f"Dec {p.dec_deg:+.1f}° (elevation {p.alt_deg:.1f}° {_facing(p)})"
+    if row.occurrences.start_mjd.size == 0:
+        return replace(a, reason=f"{head}: the beam never comes within {sweep.band_deg:g}° of the plane.")
+    if a.usable_bins.size == 0:
+        lost = ("the Sun" if row.sun_lost_fraction >= 0.999 else
+                "daylight" if sweep.night_only and row.daylight_lost_fraction > 0 else "the windows")
+        return replace(a, reason=f"{head}: every passage is lost to {lost} this period.")
+    needed = np.flatnonzero((row.bin_usable_s > 0) & (need_min > 0))
+    what = (f"serves {needed.size} still-needed bins ({compact_bins(needed, sweep.bin_width_deg)}), "
+            f"worth {a.score:.1f} bins at target depth" if needed.size else
+            f"covers {compact_bins(a.usable_bins, sweep.bin_width_deg)} but none still needed")
+    times = ", ".join(a.times_first_day)
+    drift = f" (→ {', '.join(a.times_last_day)} by the end)" if a.times_last_day != a.times_first_day else ""
+    sun = f"; {row.sun_lost_fraction:.0%} of passages lost to the Sun" if row.sun_lost_fraction > 0 else ""
+    rms = f"; about {a.rms_per_bin_day_k:.2f} K rms per bin per day" if a.rms_per_bin_day_k else ""
+    return replace(a, reason=f"{head} {what}; {a.passages_per_day:.1f} passages a day starting "
+                             f"{times}{drift}{sun}{rms}.")
