@@ -57,6 +57,9 @@ class Occurrences:
     lsr_max_kms: np.ndarray
     usable: np.ndarray  # bool: Sun far enough, and night if night-only
     template: np.ndarray  # index of the template passage it repeats
+    l_start_deg: np.ndarray  # galactic longitude at band entry and exit
+    l_end_deg: np.ndarray
+    bin_seconds: np.ndarray | None = None  # (O, B) seconds per bin inside period and windows
 
 
 @dataclass(frozen=True)
@@ -218,8 +221,11 @@ def _pick_samples(tpl: _Templates, which: np.ndarray, fractions) -> np.ndarray:
 def sweep(site: Site, pointings: list[Pointing], start_mjd: float, end_mjd: float,
           band_deg: float | None = None, night_only: bool = False, window_intervals=None,
           solar_motion: str = "standard", step_s: float = 120.0,
-          detail_step_s: float = 20.0) -> Sweep:
+          detail_step_s: float = 20.0, per_occurrence: bool = False) -> Sweep:
     """Coverage of each parked pointing over [start_mjd, end_mjd] (UTC).
+
+    With ``per_occurrence`` every occurrence also carries its seconds per bin
+    (``Occurrences.bin_seconds``, dense (O, B): meant for periods of weeks).
 
     ``window_intervals``: (K, 2) UTC MJD intervals when recording is possible
     (``windows.window_intervals_mjd``), or None for any time. A passage is usable
@@ -240,6 +246,7 @@ def sweep(site: Site, pointings: list[Pointing], start_mjd: float, end_mjd: floa
     in_band_s = np.zeros(n_rows)
     in_window_s = np.zeros(n_rows)
     parts = []
+    n_done = 0
     for k, (lo, hi) in enumerate(zip(edges[:-1], edges[1:])):  # a few epochs, not samples
         epoch = 0.5 * (lo + hi) - 0.5 * SIDEREAL_DAY_UT1_DAYS
         tpl = _templates(beam, epoch, band, step_s, detail_step_s, bw)
@@ -247,6 +254,9 @@ def sweep(site: Site, pointings: list[Pointing], start_mjd: float, end_mjd: floa
             continue
         which, start = _occurrence_starts(tpl, lo, hi, take_running=(k == 0))
         occ = _judge(site, beam, tpl, which, start, night_only, solar_motion)
+        occ["id"] = n_done + np.arange(which.size)
+        n_done += which.size
+        occ["bins"] = [] if per_occurrence else None
         parts.append(occ)
         _accumulate(tpl, occ, start_mjd, end_mjd, window_intervals, total, usable_s,
                     in_band_s, in_window_s)
@@ -277,12 +287,15 @@ def _judge(site: Site, beam: _Beam, tpl: _Templates, which: np.ndarray, start: n
     dec = np.degrees(np.arcsin(np.clip(vec3[:, 2], -1, 1)))
     lsr = velocity_corrections(site.latitude_deg, site.longitude_deg, site.height_m, ra, dec, t3,
                                solar_motion, state3).lsr_corr_kms.reshape(-1, 3)
+    gal3 = vec3 @ ICRS_TO_GALACTIC.T
+    l3 = (np.degrees(np.arctan2(gal3[:, 1], gal3[:, 0])) % 360.0).reshape(-1, 3)
     sun_ok = sep >= site.rules.sun_min_sep_deg
     dark = sun_alt_max < 0.0
     usable = sun_ok & (dark | (not night_only))
     return {"row": tpl.row[which], "which": which, "start": start, "end": start + duration,
             "sun_sep": sep, "sun_alt_max": sun_alt_max, "lsr_min": lsr.min(axis=1),
-            "lsr_max": lsr.max(axis=1), "sun_ok": sun_ok, "dark": dark, "usable": usable}
+            "lsr_max": lsr.max(axis=1), "sun_ok": sun_ok, "dark": dark, "usable": usable,
+            "l_start": l3[:, 0], "l_end": l3[:, 2]}
 
 
 def _accumulate(tpl, occ, start_mjd, end_mjd, window_intervals, total, usable_s,
@@ -290,7 +303,8 @@ def _accumulate(tpl, occ, start_mjd, end_mjd, window_intervals, total, usable_s,
     """Add each occurrence's seconds per bin (inside the period and the windows)."""
     which, start, end = occ["which"], occ["start"], occ["end"]
     whole = (start >= start_mjd) & (end <= end_mjd)
-    if window_intervals is None:
+    collect = occ.get("bins") is not None
+    if window_intervals is None and not collect:
         # Whole occurrences repeat their template's bins exactly: count per template passage.
         n_all = np.bincount(which[whole], minlength=tpl.row.size)
         n_use = np.bincount(which[whole & occ["usable"]], minlength=tpl.row.size)
@@ -319,13 +333,22 @@ def _accumulate(tpl, occ, start_mjd, end_mjd, window_intervals, total, usable_s,
         np.add.at(usable_s, (row, b), win * occ["usable"][o])
         np.add.at(in_band_s, row, w)
         np.add.at(in_window_s, row, win)
+        if collect:
+            occ["bins"].append((occ["id"][o], b, win))
 
 
 def _assemble(site, pointings, parts, total, usable_s, in_band_s, in_window_s, start_mjd,
               end_mjd, band, bw, night_only, have_windows) -> Sweep:
     keys = ("row", "which", "start", "end", "sun_sep", "sun_alt_max", "lsr_min", "lsr_max",
-            "sun_ok", "dark", "usable")
+            "sun_ok", "dark", "usable", "l_start", "l_end")
     occ = {k: np.concatenate([p[k] for p in parts]) if parts else np.zeros(0) for k in keys}
+    dense = None
+    if parts and parts[0]["bins"] is not None:
+        n_bins = total.shape[1]
+        dense = np.zeros((occ["row"].size, n_bins))
+        for p in parts:  # one entry per chunk of occurrences
+            for ids, b, w in p["bins"]:
+                np.add.at(dense, (ids, b), w)
     rows = []
     for r, pointing in enumerate(pointings):  # one entry per declination
         sel = np.flatnonzero(occ["row"] == r) if parts else np.zeros(0, int)
@@ -338,7 +361,9 @@ def _assemble(site, pointings, parts, total, usable_s, in_band_s, in_window_s, s
             occurrences=Occurrences(
                 start_mjd=o["start"], end_mjd=o["end"], sun_sep_min_deg=o["sun_sep"],
                 sun_alt_max_deg=o["sun_alt_max"], lsr_min_kms=o["lsr_min"],
-                lsr_max_kms=o["lsr_max"], usable=use, template=o["which"].astype(int)),
+                lsr_max_kms=o["lsr_max"], usable=use, template=o["which"].astype(int),
+                l_start_deg=o["l_start"], l_end_deg=o["l_end"],
+                bin_seconds=None if dense is None else dense[sel]),
             bin_total_s=total[r], bin_usable_s=usable_s[r],
             sun_lost_fraction=float((~o["sun_ok"].astype(bool)).sum() / n) if n else 0.0,
             daylight_lost_fraction=(float((o["sun_ok"].astype(bool) & ~o["dark"].astype(bool)).sum() / n)

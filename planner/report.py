@@ -396,3 +396,49 @@ def park_renderable(doc: dict, top: int):
     for r in doc["declinations"][:min(top, 3)]:
         reasons.append(f"{r['rank']}. {r['reason']}\n")
     return Group(head, table, reasons)
+
+
+# ---------------------------------------------------------------- hiplan month
+
+def _hhmm(iso_local_text: str) -> str:
+    return iso_local_text[11:16]
+
+
+def month_renderable(doc: dict):
+    """Day-by-day table and coverage summary of a drift plan."""
+    s, st, summ = doc["site"], doc["settings"], doc["summary"]
+    head = Text()
+    head.append(s["name"], style="bold")
+    head.append(f"  {doc['period']['start_local'][:10]} – {doc['period']['end_local'][:10]}  "
+                f"(target {st['target_minutes']:g} min per bin"
+                + (", night only" if st["night_only"] else "")
+                + (f"; windows: {'; '.join(st['windows'])}" if st["windows"] else "") + ")")
+    table = Table(box=box.SIMPLE_HEAD, header_style="bold", pad_edge=False)
+    for name, just in [("Date", "left"), ("Dish", "left"), ("Move", "left"), ("Recordings (local)", "left"),
+                       ("New at target", "left"), ("Centre MHz", "right"), ("Skipped", "left")]:
+        table.add_column(name, justify=just, overflow="fold")
+    previous = None
+    for day in doc["days"]:
+        park = day["park"]
+        if park is None:
+            dish = "not parked"
+        else:
+            dish = f"Dec {park['dec_deg']:+.1f} = el {park['alt_deg']:.1f}° {park['facing']}"
+            if park["move"] and previous is not None:
+                dish = f"Dec {previous['dec_deg']:+.1f} → " + dish
+        previous = park or previous
+        move = (f"{_hhmm(park['move_start_local'])}–{_hhmm(park['move_end_local'])}"
+                if park and park["move"] else "")
+        recs = "\n".join(f"{_hhmm(r['start_local'])}–{_hhmm(r['end_local'])} "
+                         f"l {r['l_start_deg']:.0f}→{r['l_end_deg']:.0f}" for r in day["recordings"])
+        new = compact_ranges([b for r in day["recordings"] for b in r["new_bins"]])
+        tune = f"{day['tuning']['centre_mhz']:.3f}" if day["tuning"] else ""
+        skipped = ", ".join(f"{_hhmm(k['start_local'])} {k['reason']}" for k in day["skipped"])
+        table.add_row(day["date"][5:], dish, move, recs or "—", "" if new == "—" else new, tune, skipped,
+                      style="bold" if park and park["move"] else "")
+    foot = Text()
+    foot.append(f"Wanted bins at target depth: {summ['done_before']} before → {summ['done_after']} after "
+                f"of {summ['wanted_bins']}, with {summ['moves']} moves.\n", style="bold")
+    for gap in summ["gaps"]:
+        foot.append(f"Still short: l {gap['l_range']} — {gap['reason']}\n")
+    return Group(head, table, foot)

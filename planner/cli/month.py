@@ -1,0 +1,170 @@
+"""``hiplan month``: plan a period of drift scans to fill galactic-longitude gaps."""
+from __future__ import annotations
+
+from datetime import date
+
+import numpy as np
+from rich.console import Console
+
+from ..coverage import sweep
+from ..errors import UserError
+from ..galaxy import model_from_name
+from ..month import Goal, minutes_for_rms, move_slots, plan_month
+from ..obslog import coverage_minutes, read_log
+from ..outputs import check_writable, write_atomic
+from ..park import DEFAULT_TARGET_MINUTES, candidate_pointings, parse_want
+from ..planfile import drift_plan_document
+from ..report import month_renderable, to_json
+from ..site import load_site
+from ..timebase import local_day_span, parse_day
+from ..windows import never_occurs, read_windows, window_intervals_mjd
+from .common import add_lsr_definition, add_site, emit, number, today_at
+
+NAME = "month"
+HELP = "plan a month of drift scans: where to park each day, what to record"
+MAX_PLAN_DAYS = 92
+
+
+def add_arguments(p) -> None:
+    add_site(p)
+    g = p.add_argument_group("period")
+    g.add_argument("--month", help="calendar month YYYY-MM (local days at the site)")
+    g.add_argument("--start", help="first local day YYYY-MM-DD (instead of --month)")
+    g.add_argument("--days", type=number(int, "--days", 1, MAX_PLAN_DAYS),
+                   help="number of days with --start (default 30)")
+    p.add_argument("--want", help="wanted longitude ranges, e.g. 30-90,120-140 (default all)")
+    depth = p.add_mutually_exclusive_group()
+    depth.add_argument("--target-minutes", type=number(float, "--target-minutes", 0, 1e5, lo_open=True),
+                       help=f"integration wanted per 1-degree bin (default {DEFAULT_TARGET_MINUTES:g} min)")
+    depth.add_argument("--target-rms", type=number(float, "--target-rms", 0, 1e3, lo_open=True),
+                       help="noise wanted per channel in each bin (K); sets the minutes")
+    p.add_argument("--log", help="observation log (CSV) of what is already covered")
+    p.add_argument("--windows", help="operator availability (file or text): moves happen at the "
+                                     "first window of a day")
+    p.add_argument("--record-in-windows", action="store_true",
+                   help="count recordings only inside the windows (someone must attend them)")
+    p.add_argument("--night-only", action="store_true", help="record only with the Sun down")
+    p.add_argument("--repark-minutes", type=number(float, "--repark-minutes", 0, 600), default=15.0,
+                   help="time a volunteer needs to move the dish (default 15)")
+    p.add_argument("--min-days-between-moves", type=number(int, "--min-days-between-moves", 1, 92),
+                   default=1, help="at most one move per this many days (default 1)")
+    p.add_argument("--start-dec", type=number(float, "--start-dec", -90, 90),
+                   help="declination the dish is parked at now (default: the site's [pointing])")
+    p.add_argument("--step", type=number(float, "--step", 0, 30, lo_open=True),
+                   help="declination step (deg; default half the beamwidth)")
+    p.add_argument("--band", type=number(float, "--band", 0, 90, lo_open=True, hi_open=True),
+                   help="half-width of the |b| strip (deg; default from the site rules)")
+    p.add_argument("--rotation", default="iau1985", help="rotation model for tuning (default iau1985)")
+    p.add_argument("--alarm", type=number(int, "--alarm", 0, 1440), default=15,
+                   help="reminder lead for calendar events (minutes, default 15)")
+    add_lsr_definition(p)
+    o = p.add_argument_group("output")
+    o.add_argument("--format", choices=("table", "json"), default="table")
+    o.add_argument("--output", "-o", help="write the plan (JSON) to this file")
+    o.add_argument("--ics", help="also write the calendar (.ics) here")
+    o.add_argument("--force", action="store_true", help="replace existing output files")
+
+
+def period_from(args, site) -> tuple[float, float, int, str]:
+    """(start_mjd, end_mjd, days, label) from --month or --start/--days."""
+    if args.month and (args.start or args.days):
+        raise UserError("give --month, or --start with --days, not both")
+    if args.month:
+        try:
+            year, month = (int(x) for x in args.month.split("-"))
+            first = date(year, month, 1)
+        except ValueError:
+            raise UserError(f"--month: '{args.month}' is not a month of the form YYYY-MM") from None
+        nxt = date(year + (month == 12), month % 12 + 1, 1)
+        days = (nxt - first).days
+    else:
+        first = parse_day(args.start, "--start") if args.start else today_at(site)
+        days = args.days or 30
+    start_mjd, end_mjd = local_day_span(first, days, site.tz)
+    return start_mjd, end_mjd, days, first.isoformat()
+
+
+def build_plan(args, site):
+    """Everything from options to the plan document (shared with the demo)."""
+    start_mjd, end_mjd, days, label = period_from(args, site)
+    bw = site.rules.bin_width_deg
+    want = parse_want(args.want, bw)
+    done = coverage_minutes(read_log(args.log), bw) if args.log else np.zeros(want.size)
+    target = (minutes_for_rms(site, args.target_rms) if args.target_rms
+              else (args.target_minutes or DEFAULT_TARGET_MINUTES))
+    intervals, windows_text = None, []
+    if args.windows:
+        avail = read_windows(args.windows)
+        if never_occurs(avail, start_mjd, end_mjd, site.tz):
+            raise UserError(f"nothing to plan because the windows never occur in the {days} days "
+                            f"from {label}")
+        intervals = window_intervals_mjd(avail, start_mjd, end_mjd, site.tz)
+        windows_text = avail.describe()
+    pointings = candidate_pointings(site, args.step)
+    if not pointings:
+        raise UserError(f"{site.source}: no declination is reachable with this dish's limits")
+    result = sweep(site, pointings, start_mjd, end_mjd, args.band, args.night_only,
+                   intervals if args.record_in_windows else None, args.lsr_def, per_occurrence=True)
+    if not any(r.bin_usable_s.sum() > 0 for r in result.rows):
+        raise UserError("nothing to plan because no passage is usable in this period "
+                        "(every one is too close to the Sun" + (", in daylight" if args.night_only else "")
+                        + (" or outside the windows" if args.record_in_windows else "") + ")")
+    slots = move_slots(start_mjd, days, site.tz, intervals)
+    if not slots:
+        raise UserError("nothing to plan because no availability window falls on any day")
+    start_row = _start_row(args, site, result)
+    goal = Goal(want=want, target_minutes=target, done_minutes=done)
+    plan = plan_month(result, goal, slots, start_row, args.repark_minutes, args.min_days_between_moves)
+    settings = {
+        "band_deg": result.band_deg, "bin_width_deg": bw,
+        "want": _want_ranges(args.want), "target_minutes": round(target, 3),
+        "target_rms_k": args.target_rms, "night_only": args.night_only,
+        "record_in_windows": args.record_in_windows, "windows": windows_text,
+        "max_reparks_per_day": 1, "min_days_between_moves": args.min_days_between_moves,
+        "repark_minutes": args.repark_minutes, "sun_min_sep_deg": site.rules.sun_min_sep_deg,
+        "lsr_definition": args.lsr_def, "rotation_model": args.rotation,
+        "alarm_minutes": args.alarm, "log": args.log,
+    }
+    doc = drift_plan_document(plan, settings, model_from_name(args.rotation), args.record_in_windows)
+    return plan, doc
+
+
+def _want_ranges(text):
+    if not text:
+        return [[0, 360]]
+    out = []
+    for part in text.split(","):
+        lo, hi = part.split("-")
+        out.append([float(lo), float(hi)])
+    return out
+
+
+def _start_row(args, site, result):
+    """Sweep row nearest the dish's current declination, or None."""
+    dec = args.start_dec if args.start_dec is not None else site.default_pointing.get("dec_deg")
+    if dec is None:
+        return None
+    decs = np.array([r.pointing.dec_deg for r in result.rows])
+    return int(np.argmin(np.abs(decs - dec)))
+
+
+def run(args, console: Console) -> int:
+    site = load_site(args.site)
+    outputs = [p for p in (args.output, args.ics) if p]
+    for path in outputs:
+        check_writable(path, args.force)
+    if args.ics and args.ics == args.output:
+        raise UserError("--ics and --output must be different files")
+    _, doc = build_plan(args, site)
+    if args.output:
+        write_atomic(args.output, to_json(doc), args.force)
+    if args.ics:
+        from ..ical import calendar_bytes, plan_calendar
+        write_atomic(args.ics, calendar_bytes(plan_calendar(doc, args.alarm)), args.force)
+    if args.format == "json" and not args.output:
+        emit(args, console, to_json(doc))
+    elif args.format == "table":
+        console.print(month_renderable(doc))
+    for path in outputs:
+        Console(stderr=True).print(f"wrote {path}")
+    return 0

@@ -1,0 +1,184 @@
+"""Plan files: the drift-plan document built from a ``MonthPlan``, and reading plans back.
+
+The format is described in docs/plan-format.md (``hiplan.plan/1`` for drift
+plans, ``hiplan.survey/1`` for survey plans). Building a document is pure; the
+one reader here takes a path because every plan consumer needs the same checks
+(missing file, bad JSON with its line, wrong schema) and the same one-line errors.
+"""
+from __future__ import annotations
+
+import json
+from datetime import timedelta
+from pathlib import Path
+
+import numpy as np
+
+from .errors import UserError
+from .galaxy import RotationModel
+from .month import MonthPlan, gap_reasons
+from .park import _facing, compact_bins
+from .report import _round_floats, period_summary
+from .timebase import iso_local, iso_utc, mjd_to_datetime_utc
+from .tuning import line_setup
+
+DRIFT_SCHEMA = "hiplan.plan/1"
+SURVEY_SCHEMA = "hiplan.survey/1"
+PLAN_SCHEMAS = (DRIFT_SCHEMA, SURVEY_SCHEMA)
+_DRIFT_KEYS = ("site", "period", "settings", "days", "summary")
+_SURVEY_KEYS = ("site", "period", "settings", "blocks", "unscheduled")
+
+
+def read_plan(path) -> dict:
+    """Read and check a plan file; UserError naming the file for any problem."""
+    src = str(path)
+    try:
+        text = Path(path).read_text(encoding="utf-8")
+    except FileNotFoundError:
+        raise UserError(f"{src}: plan file not found") from None
+    except (OSError, UnicodeDecodeError) as exc:
+        raise UserError(f"{src}: cannot read plan file ({exc})") from None
+    try:
+        doc = json.loads(text)
+    except json.JSONDecodeError as exc:
+        raise UserError(f"{src}:{exc.lineno}: not valid JSON ({exc.msg})") from None
+    check_plan(doc, src)
+    return doc
+
+
+def check_plan(doc, src: str) -> None:
+    """UserError unless ``doc`` is a plan of a schema this version reads."""
+    if not isinstance(doc, dict) or "schema" not in doc:
+        raise UserError(f"{src}: not a hiplan plan (no 'schema' field)")
+    if doc["schema"] not in PLAN_SCHEMAS:
+        raise UserError(f"{src}: plan schema '{doc['schema']}' is not supported "
+                        f"(this hiplan reads {', '.join(PLAN_SCHEMAS)})")
+    keys = _DRIFT_KEYS if doc["schema"] == DRIFT_SCHEMA else _SURVEY_KEYS
+    missing = [k for k in keys if k not in doc]
+    if missing:
+        raise UserError(f"{src}: plan is missing {', '.join(missing)}")
+
+
+def drift_plan_document(plan: MonthPlan, settings: dict, model: RotationModel,
+                        windows_limit_recording: bool) -> dict:
+    """The ``hiplan.plan/1`` document for a month plan (see docs/plan-format.md)."""
+    sweep, goal = plan.sweep, plan.goal
+    site, tz = sweep.site, sweep.site.tz
+    bw = sweep.bin_width_deg
+    first_day = mjd_to_datetime_utc(sweep.start_mjd).astimezone(tz).date()
+    n_days = (mjd_to_datetime_utc(sweep.end_mjd).astimezone(tz).date() - first_day).days
+    days = [{"date": (first_day + timedelta(days=d)).isoformat(), "park": None, "recordings": [],
+             "skipped": [], "tuning": None} for d in range(n_days)]
+
+    def day_of(mjd: float) -> int:
+        return (mjd_to_datetime_utc(mjd).astimezone(tz).date() - first_day).days
+
+    # Running depth in time order, to say which recording brings a bin to the target.
+    depth = goal.done_minutes.astype(float).copy()
+    events = []
+    for k, parking in enumerate(plan.parkings):
+        occ = sweep.rows[parking.row].occurrences
+        for i in parking.occurrences:
+            events.append((occ.start_mjd[i], k, int(i)))
+    events.sort()
+    recordings_by_day: dict[int, list] = {}
+    for start, k, i in events:  # one per recording (tens to hundreds)
+        parking = plan.parkings[k]
+        occ = sweep.rows[parking.row].occurrences
+        minutes = occ.bin_seconds[i] / 60.0
+        bins = np.flatnonzero(minutes > 0)
+        if bins.size == 0:  # wholly outside the recording windows: listed as skipped
+            continue
+        before = depth.copy()
+        depth = depth + minutes
+        new = np.flatnonzero(goal.want & (before < goal.target_minutes) & (depth >= goal.target_minutes))
+        rec = {
+            "start_utc": iso_utc(occ.start_mjd[i]), "end_utc": iso_utc(occ.end_mjd[i]),
+            "start_local": iso_local(occ.start_mjd[i], tz), "end_local": iso_local(occ.end_mjd[i], tz),
+            "l_start_deg": float(occ.l_start_deg[i]), "l_end_deg": float(occ.l_end_deg[i]),
+            "l_bins": [_tidy(b * bw) for b in bins], "bin_minutes": [float(m) for m in minutes[bins]],
+            "new_bins": [_tidy(b * bw) for b in new],
+            "sun_sep_min_deg": float(occ.sun_sep_min_deg[i]), "night": bool(occ.sun_alt_max_deg[i] < 0),
+            "lsr_corr_min_kms": float(occ.lsr_min_kms[i]), "lsr_corr_max_kms": float(occ.lsr_max_kms[i]),
+        }
+        d = day_of(occ.start_mjd[i])
+        if 0 <= d < n_days:
+            recordings_by_day.setdefault(d, []).append((rec, bins, occ.lsr_min_kms[i], occ.lsr_max_kms[i]))
+
+    # Parking per day, moves, and the passages of the parked declination that are skipped.
+    for k, parking in enumerate(plan.parkings):
+        row = sweep.rows[parking.row]
+        p = row.pointing
+        park = {"dec_deg": p.dec_deg, "alt_deg": p.alt_deg, "az_deg": p.az_deg, "facing": _facing(p)}
+        first = day_of(parking.move_mjd) if parking.move_mjd is not None else 0
+        last = min(day_of(parking.end_mjd - 1e-6), n_days - 1)
+        for d in range(max(first, 0), last + 1):
+            moving = parking.move_mjd is not None and d == first
+            days[d]["park"] = {**park, "move": moving,
+                               "move_start_utc": iso_utc(parking.move_mjd) if moving else None,
+                               "move_end_utc": iso_utc(parking.start_mjd) if moving else None,
+                               "move_start_local": iso_local(parking.move_mjd, tz) if moving else None,
+                               "move_end_local": iso_local(parking.start_mjd, tz) if moving else None}
+        occ = row.occurrences
+        taken = set(int(i) for i in parking.occurrences)
+        inside = (occ.start_mjd >= parking.start_mjd) & (occ.end_mjd <= parking.end_mjd)
+        for i in np.flatnonzero(inside):
+            if int(i) in taken and occ.bin_seconds[i].sum() > 0:
+                continue
+            if occ.sun_sep_min_deg[i] < site.rules.sun_min_sep_deg:
+                reason = "sun"
+            elif not occ.usable[i]:
+                reason = "daylight"
+            else:
+                reason = "outside windows"
+            d = day_of(occ.start_mjd[i])
+            if 0 <= d < n_days:
+                days[d]["skipped"].append({
+                    "start_utc": iso_utc(occ.start_mjd[i]), "end_utc": iso_utc(occ.end_mjd[i]),
+                    "start_local": iso_local(occ.start_mjd[i], tz),
+                    "end_local": iso_local(occ.end_mjd[i], tz),
+                    "l_bins": [_tidy(b * bw) for b in np.flatnonzero(occ.bin_seconds[i] > 0)]
+                    or [_tidy(np.floor(occ.l_start_deg[i] / bw) * bw)],
+                    "reason": reason})
+
+    for d, items in recordings_by_day.items():
+        days[d]["recordings"] = [rec for rec, *_ in items]
+        bins = sorted({int(b) for _, bs, *_ in items for b in bs})
+        setup = line_setup(bins, bw, sweep.band_deg, min(x[2] for x in items), max(x[3] for x in items),
+                           site.receiver, model)
+        a = setup.advice
+        days[d]["tuning"] = {
+            "centre_mhz": a.centre_mhz, "line_low_mhz": a.line_low_mhz, "line_high_mhz": a.line_high_mhz,
+            "fits": a.fits, "margin_mhz": a.margin_mhz, "spike_clear": a.spike_clear,
+            "channel_width_kms": a.channel_width_kms, "v_lsr_min_kms": setup.v_lsr_min_kms,
+            "v_lsr_max_kms": setup.v_lsr_max_kms, "lsr_corr_min_kms": setup.lsr_corr_min_kms,
+            "lsr_corr_max_kms": setup.lsr_corr_max_kms}
+    for day in days:
+        day["skipped"].sort(key=lambda s: s["start_utc"])
+
+    wanted = np.flatnonzero(goal.want)
+    reasons = gap_reasons(sweep, goal, plan.depth_after, windows_limit_recording)
+    gaps = []
+    for reason in sorted(set(reasons.values())):
+        bins = [b for b, r in reasons.items() if r == reason]
+        gaps.append({"l_range": compact_bins(bins, bw), "bins": [_tidy(b * bw) for b in bins],
+                     "reason": reason})
+    doc = {
+        "schema": DRIFT_SCHEMA, "kind": "drift", "site": site.summary(),
+        "period": period_summary(sweep.start_mjd, sweep.end_mjd, tz),
+        "settings": settings,
+        "days": days,
+        "summary": {
+            "wanted_bins": int(wanted.size), "done_before": plan.done_before,
+            "done_after": plan.done_after, "target_minutes": goal.target_minutes,
+            "moves": sum(1 for p in plan.parkings if p.move_mjd is not None),
+            "depth_before_min": {str(_tidy(b * bw)): float(plan.depth_before[b]) for b in wanted},
+            "depth_after_min": {str(_tidy(b * bw)): float(plan.depth_after[b]) for b in wanted},
+            "gaps": gaps,
+        },
+    }
+    return _round_floats(doc, 4)
+
+
+def _tidy(value):
+    value = float(value)
+    return int(value) if value.is_integer() else value
