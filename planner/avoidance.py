@@ -49,3 +49,11 @@ def sun_altitude_deg(site: Site, state: EarthState) -> np.ndarray:
     """Sun's geometric altitude (deg) at the site (no refraction)."""
     alt, _ = icrs_to_altaz_deg(site, sun_direction(state), state)
     return alt
+
+
+def sun_galactic_deg(mjd_utc) -> tuple[np.ndarray, np.ndarray]:
+    """The Sun's galactic (l, b) in degrees at ``mjd_utc`` (geocentric, for maps)."""
+    from .earth import earth_state, spherical_deg
+    from .galactic import ICRS_TO_GALACTIC
+    state = earth_state(np.atleast_1d(np.asarray(mjd_utc, dtype=float)))
+    return spherical_deg(sun_direction(state) @ ICRS_TO_GALACTIC.T)

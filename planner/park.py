@@ -45,9 +45,9 @@ def parse_want(text: str | None, bin_width_deg: float = 1.0, option: str = "--wa
                 raise ValueError
             lo, hi = float(pieces[0]), float(pieces[1])
         except ValueError:
-            raise UserError(f"{option}: '{item}' is not a longitude range like 30-90") from None
+            raise UserError(f"{option}: {item!r} is not a longitude range like 30-90") from None
         if not (0 <= lo <= 360 and 0 <= hi <= 360) or lo == hi:
-            raise UserError(f"{option}: '{item}' must have two different longitudes in 0..360")
+            raise UserError(f"{option}: {item!r} must have two different longitudes in 0..360")
         first = int(np.floor(lo / bin_width_deg + 1e-9))
         last = int(np.ceil(hi / bin_width_deg - 1e-9))  # exclusive
         if hi > lo:

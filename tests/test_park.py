@@ -103,3 +103,13 @@ def test_park_deterministic(capsys):
     first = capsys.readouterr().out
     main(argv)
     assert capsys.readouterr().out == first
+
+
+def test_park_plots_written(tmp_path, capsys):
+    atlas = tmp_path / "atlas.svg"
+    assert main(["park", "--start", "2027-03-01", "--days", "3", "--plot", str(atlas)]) == 0
+    capsys.readouterr()
+    assert atlas.read_text().lstrip().startswith(("<?xml", "<svg"))
+    assert (tmp_path / "atlas-sky.svg").stat().st_size > 1000
+    assert main(["park", "--start", "2027-03-01", "--days", "3", "--plot", str(tmp_path / "x.pdf")]) == 2
+    assert "--plot: " in capsys.readouterr().err

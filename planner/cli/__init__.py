@@ -46,7 +46,9 @@ def main(argv: list[str] | None = None) -> int:
             return 2
         return COMMANDS[args.command](args, console)
     except UserError as exc:
-        err.print(f"hiplan: error: {exc}", markup=False, highlight=False, soft_wrap=True)
+        # One line, whatever the message carries (e.g. a newline typed into an option).
+        line = " ".join(str(exc).split("\n"))
+        err.print(f"hiplan: error: {line}", markup=False, highlight=False, soft_wrap=True)
         return 2
     except KeyboardInterrupt:
         err.print("hiplan: interrupted", markup=False)

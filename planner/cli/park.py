@@ -93,11 +93,48 @@ def _plot_paths(plot: str, force: bool):
 
 def _write_plots(paths, result, advice, want, done, args, site) -> None:
     """Render the atlas and the best declination's sky track; write them atomically."""
-    from ..plotdata import atlas_figure, sky_figure
+    from ..plots import coverage_atlas, sky_track_map
     atlas_path, sky_path = paths
-    for fig, path in ((atlas_figure(result, want, done, args.target_minutes), atlas_path),
-                      (sky_figure(result, advice[0]), sky_path)):
+    figures = [(atlas_figure(result, want, done, args.target_minutes, coverage_atlas), atlas_path),
+               (sky_figure(result, advice[0], sky_track_map), sky_path)]
+    for fig, path in figures:
         write_atomic(path, _figure_bytes(fig, path.suffix.lstrip(".").lower()), args.force)
+
+
+def atlas_figure(result, want, done, target_minutes, coverage_atlas):
+    """The coverage atlas of a sweep: usable hours per declination and bin."""
+    from ..report import period_summary
+    bw = result.bin_width_deg
+    decs = np.array([r.pointing.dec_deg for r in result.rows])
+    hours = np.array([r.bin_usable_s / 3600.0 for r in result.rows])
+    period = period_summary(result.start_mjd, result.end_mjd, result.site.tz)
+    return coverage_atlas(
+        decs, result.bin_starts_deg, hours, reachable_dec=(decs.min(), decs.max()),
+        wanted_bins=result.bin_starts_deg[want], covered_bins=result.bin_starts_deg[done >= target_minutes],
+        site_name=result.site.name, period_text=f"{period['start_local'][:10]} – {period['end_local'][:10]}",
+        band_deg=result.band_deg, bin_width_deg=bw)
+
+
+def sky_figure(result, best, sky_track_map):
+    """The beam track of the best declination over one sidereal day, with the Sun."""
+    from ..avoidance import sun_galactic_deg
+    from ..coverage import SIDEREAL_DAY_UT1_DAYS
+    from ..skytrack import track_mjd
+    site = result.site
+    mjd = result.start_mjd + np.linspace(0.0, SIDEREAL_DAY_UT1_DAYS, 1441)
+    track = track_mjd(site, best.pointing, mjd)
+    occ = best.coverage.occurrences
+    # A sample is in a usable passage when its longitude bin gets usable time.
+    bins = (np.floor(track.l_deg / result.bin_width_deg).astype(int)) % best.coverage.bin_usable_s.size
+    in_passage = (np.abs(track.b_deg) <= result.band_deg) & (best.coverage.bin_usable_s[bins] > 0)
+    days = np.arange(result.start_mjd, result.end_mjd + 1e-9, 1.0)
+    sun_l, sun_b = sun_galactic_deg(days)
+    p = best.pointing
+    title = (f"{site.name}: Dec {p.dec_deg:+.1f}° (elevation {p.alt_deg:.1f}°), "
+             f"{len(occ.start_mjd)} passages")
+    return sky_track_map(track.l_deg, track.b_deg, band_deg=result.band_deg, in_passage=in_passage,
+                         sun_l_deg=sun_l, sun_b_deg=sun_b, sun_radius_deg=site.rules.sun_min_sep_deg,
+                         title=title)
 
 
 def _figure_bytes(fig, fmt: str) -> bytes:
