@@ -99,6 +99,7 @@ def drift_plan_document(plan: MonthPlan, settings: dict, model: RotationModel,
             "new_bins": [_tidy(b * bw) for b in new],
             "sun_sep_min_deg": float(occ.sun_sep_min_deg[i]), "night": bool(occ.sun_alt_max_deg[i] < 0),
             "lsr_corr_min_kms": float(occ.lsr_min_kms[i]), "lsr_corr_max_kms": float(occ.lsr_max_kms[i]),
+            "dish": _dish(sweep.rows[parking.row].pointing),
         }
         d = day_of(occ.start_mjd[i])
         if 0 <= d < n_days:
@@ -107,8 +108,7 @@ def drift_plan_document(plan: MonthPlan, settings: dict, model: RotationModel,
     # Parking per day, moves, and the passages of the parked declination that are skipped.
     for k, parking in enumerate(plan.parkings):
         row = sweep.rows[parking.row]
-        p = row.pointing
-        park = {"dec_deg": p.dec_deg, "alt_deg": p.alt_deg, "az_deg": p.az_deg, "facing": _facing(p)}
+        park = _dish(row.pointing)
         first = day_of(parking.move_mjd) if parking.move_mjd is not None else 0
         last = min(day_of(parking.end_mjd - 1e-6), n_days - 1)
         for d in range(max(first, 0), last + 1):
@@ -177,6 +177,11 @@ def drift_plan_document(plan: MonthPlan, settings: dict, model: RotationModel,
         },
     }
     return _round_floats(doc, 4)
+
+
+def _dish(p) -> dict:
+    """The dish setting of a parked pointing, as plans record it."""
+    return {"dec_deg": p.dec_deg, "alt_deg": p.alt_deg, "az_deg": p.az_deg, "facing": _facing(p)}
 
 
 def _tidy(value):

@@ -14,10 +14,10 @@ from rich.console import Console
 
 from .. import __version__
 from ..errors import UserError
-from . import crossings, demo, lsr, month, park, sites, tune
+from . import calendar, crossings, demo, lsr, month, park, sites, tune
 from .common import Parser
 
-COMMAND_MODULES = (demo, park, month, crossings, lsr, tune, sites)
+COMMAND_MODULES = (demo, park, month, calendar, crossings, lsr, tune, sites)
 COMMANDS = {m.NAME: m.run for m in COMMAND_MODULES}
 
 

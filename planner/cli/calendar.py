@@ -1,0 +1,54 @@
+"""``hiplan calendar``: a plan file as an iCalendar (.ics) file of volunteer tasks."""
+from __future__ import annotations
+
+from pathlib import Path
+
+from rich.console import Console
+
+from ..errors import UserError
+from ..ical import calendar_bytes, plan_calendar, plan_events, read_plan
+from ..outputs import check_writable, write_atomic
+from .common import number
+
+NAME = "calendar"
+HELP = "turn a plan file (hiplan month / survey JSON) into an iCalendar file"
+
+
+def add_arguments(p) -> None:
+    p.add_argument("plan", type=Path, metavar="PLAN.json",
+                   help="drift plan (hiplan.plan/1) or survey plan (hiplan.survey/1)")
+    p.add_argument("--output", "-o", type=Path, metavar="FILE.ics",
+                   help="calendar file to write (default: the plan's path with .ics in place "
+                        "of its suffix, e.g. plan.json -> plan.ics)")
+    p.add_argument("--alarm", type=number(int, "--alarm", 0, 10080), metavar="MINUTES",
+                   help="reminder this many minutes before each task (default: the plan's "
+                        "alarm_minutes setting, else 15; 0 = at the start)")
+    p.add_argument("--force", action="store_true", help="replace an existing calendar file")
+
+
+def output_path(args) -> Path:
+    """The file to write: ``--output`` or the plan path with an .ics suffix."""
+    out = args.output if args.output is not None else args.plan.with_suffix(".ics")
+    if out.resolve() == args.plan.resolve():
+        raise UserError(f"{out}: the calendar would replace the plan file itself; give -o")
+    return out
+
+
+def run(args, console: Console) -> int:
+    out = output_path(args)
+    check_writable(out, args.force)  # before any work: refuse early, write nothing
+    doc = read_plan(args.plan)
+    events = plan_events(doc, str(args.plan))
+    if not events:
+        raise UserError(f"{args.plan}: the plan has no recordings, re-park tasks or survey "
+                        "blocks, so there is nothing to put in a calendar")
+    cal = plan_calendar(doc, alarm_minutes=args.alarm)
+    write_atomic(out, calendar_bytes(cal), args.force)
+    counts = {}
+    for event in events:
+        counts[event.kind] = counts.get(event.kind, 0) + 1
+    labels = {"recording": "recordings", "repark": "re-park tasks", "target": "target blocks",
+              "reference": "reference blocks"}
+    detail = ", ".join(f"{counts[k]} {label}" for k, label in labels.items() if k in counts)
+    console.print(f"wrote {out}: {len(events)} events ({detail})", markup=False, highlight=False)
+    return 0

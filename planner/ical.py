@@ -1,0 +1,683 @@
+"""iCalendar export of a plan: the volunteer's tasks as RFC 5545 events.
+
+A drift plan (``hiplan.plan/1``) gives one VEVENT per recording window and one
+per re-park task (``park.move`` true, from ``move_start`` to ``move_end``); a
+survey plan (``hiplan.survey/1``) gives one VEVENT per ``target`` or
+``reference`` block, slews being told in the description of the block they
+lead to. Formats: docs/plan-format.md.
+
+Rules followed (RFC 5545, Desruisseaux 2009; RFC 7986, Daboo 2016):
+
+- Each VEVENT has one UID and one DTSTAMP; VCALENDAR has PRODID and VERSION.
+- UIDs are name-based UUIDs (version 5, RFC 4122 section 4.3) over the event's
+  identity (site, kind, start to the minute, and the longitude bins or block
+  name), so exporting a plan again, or an updated plan, gives the same UID to
+  the same task and calendar programs update events instead of duplicating
+  them. They carry no host or user data (RFC 7986 section 5.3).
+- Times are written in the site's zone (``DTSTART;TZID=...``) with a VTIMEZONE
+  built here from ``zoneinfo``. The one exception is a time in the repeated
+  hour when clocks go back on its second occurrence: RFC 5545 section 3.3.5
+  makes such a local time mean the first occurrence, so it is written in UTC.
+- The VTIMEZONE observance onsets are the local time *before* the change
+  (interpreted with TZOFFSETFROM), as in the RFC 5545 section 3.6.5 examples.
+  ``icalendar``'s own ``Calendar.add_missing_timezones()`` (v7.3) writes the
+  spring-forward onset one hour late (the wall clock after the change), so a
+  program reading the VTIMEZONE would misplace events in that hour; hence the
+  builder here.
+
+Pure: no file access except the thin ``read_plan`` helper.
+"""
+from __future__ import annotations
+
+import json
+import math
+import os
+import uuid
+from dataclasses import dataclass
+from datetime import datetime, timedelta, timezone
+from zoneinfo import ZoneInfo, ZoneInfoNotFoundError
+
+import icalendar
+
+from .errors import UserError
+
+PLAN_SCHEMAS = ("hiplan.plan/1", "hiplan.survey/1")
+_KIND_OF_SCHEMA = {"hiplan.plan/1": "drift", "hiplan.survey/1": "survey"}
+
+PRODID = "-//hiplan//hiplan 0.1//EN"
+# Our own fixed namespace for event UIDs (a random version-4 UUID drawn once);
+# changing it would change every UID ever exported.
+UID_NAMESPACE = uuid.UUID("bc7bf818-f5b0-426a-8568-463643dd1c93")
+
+DEFAULT_ALARM_MINUTES = 15  # common practice for a calendar reminder
+MAX_ALARM_MINUTES = 7 * 24 * 60  # a week: a longer lead is almost surely a typo
+MAX_PLAN_BYTES = 50_000_000  # a plan of two years is a few MB; more is not a plan file
+
+# Protected radio-astronomy band: ITU Radio Regulations No. 5.340, "all
+# emissions are prohibited in the band 1400-1427 MHz" (from memory).
+SAFETY_TEXT = (
+    "Safety: never leave the dish pointing at or near the Sun - a dish focuses sunlight "
+    "and heat on the feed and can melt it. No roof or mast work in wind, rain, ice, "
+    "darkness or thunder. Receive only, in 1400-1427 MHz (protected radio-astronomy "
+    "band); never transmit. Follow local building and electrical codes."
+)
+
+EVENT_KINDS = ("recording", "repark", "target", "reference")
+_CATEGORY = {"recording": "HI recording", "repark": "dish re-park", "target": "HI survey",
+             "reference": "HI survey"}
+
+
+@dataclass(frozen=True)
+class PlanEvent:
+    """One calendar task: times are aware UTC datetimes, whole seconds."""
+
+    kind: str  # one of EVENT_KINDS
+    start_utc: datetime
+    end_utc: datetime
+    summary: str
+    description: str
+    identity: str  # what makes the task the same task in an updated plan
+
+
+# ------------------------------------------------------------------- checking
+
+def check_plan(doc: dict, source: str) -> None:
+    """Raise ``UserError("{source}: ...")`` unless ``doc`` is a plan this module reads.
+
+    Checks the schema string, the site object and every field the calendar uses
+    (times, angles); optional fields are only checked when present.
+    """
+    plan_events(doc, source)
+    _alarm_lead(doc, None, source)
+
+
+def read_plan(path) -> dict:
+    """Read a plan JSON file and check it; every problem is a one-line UserError."""
+    src = str(path)
+    try:
+        with open(path, "rb") as handle:
+            if os.fstat(handle.fileno()).st_size > MAX_PLAN_BYTES:
+                raise UserError(f"{src}: larger than {MAX_PLAN_BYTES / 1e6:g} MB, not a plan file")
+            data = handle.read(MAX_PLAN_BYTES + 1)
+    except FileNotFoundError:
+        raise UserError(f"{src}: plan file not found") from None
+    except IsADirectoryError:
+        raise UserError(f"{src}: is a folder, not a plan file") from None
+    except OSError as exc:
+        raise UserError(f"{src}: cannot read plan file ({exc.strerror or exc})") from None
+    if len(data) > MAX_PLAN_BYTES:
+        raise UserError(f"{src}: larger than {MAX_PLAN_BYTES / 1e6:g} MB, not a plan file")
+    try:
+        doc = json.loads(data.decode("utf-8-sig"))
+    except UnicodeDecodeError:
+        raise UserError(f"{src}: not UTF-8 text, so not a plan file") from None
+    except json.JSONDecodeError as exc:
+        raise UserError(f"{src}: not valid JSON (line {exc.lineno}, column {exc.colno}: "
+                        f"{exc.msg})") from None
+    check_plan(doc, src)
+    return doc
+
+
+def _schema_kind(doc, source: str) -> str:
+    if not isinstance(doc, dict):
+        raise UserError(f"{source}: not a hiplan plan (the JSON top level is "
+                        f"{_json_type(doc)}, expected an object)")
+    expected = " or ".join(PLAN_SCHEMAS)
+    if "schema" not in doc:
+        raise UserError(f"{source}: no 'schema' field, so not a hiplan plan (expected {expected})")
+    schema = doc["schema"]
+    if schema not in PLAN_SCHEMAS:
+        family = str(schema).split("/")[0]
+        hint = (" (written by another hiplan version)"
+                if family in {s.split("/")[0] for s in PLAN_SCHEMAS} else "")
+        raise UserError(f"{source}: schema '{schema}' is not a plan this version reads"
+                        f"{hint}; expected {expected}")
+    kind = _KIND_OF_SCHEMA[schema]
+    if doc.get("kind", kind) != kind:
+        raise UserError(f"{source}: kind '{doc['kind']}' does not match schema '{schema}' "
+                        f"(expected '{kind}')")
+    return kind
+
+
+def _json_type(value) -> str:
+    names = {list: "a list", str: "a text", bool: "true/false", int: "a number",
+             float: "a number", type(None): "null"}
+    return names.get(type(value), type(value).__name__)
+
+
+def _member(obj: dict, key: str, where: str, source: str, kind=dict, required=True):
+    """``obj[key]`` checked to be ``kind`` (dict or list); None when optional and absent."""
+    value = obj.get(key)
+    if value is None:
+        if required:
+            raise UserError(f"{source}: {_join(where, key)} is missing")
+        return None
+    if not isinstance(value, kind):
+        want = "an object" if kind is dict else "a list"
+        raise UserError(f"{source}: {_join(where, key)} must be {want}, found {_json_type(value)}")
+    return value
+
+
+def _number(obj: dict, key: str, where: str, source: str, lo=None, hi=None,
+            required=True) -> float | None:
+    value = obj.get(key)
+    if value is None:
+        if required:
+            raise UserError(f"{source}: {_join(where, key)} is missing")
+        return None
+    if isinstance(value, bool) or not isinstance(value, (int, float)) or not math.isfinite(value):
+        raise UserError(f"{source}: {_join(where, key)} must be a number, found {value!r}")
+    if (lo is not None and value < lo) or (hi is not None and value > hi):
+        raise UserError(f"{source}: {_join(where, key)} = {value} is outside [{lo}, {hi}]")
+    return float(value)
+
+
+def _text(obj: dict, key: str, where: str, source: str, required=True) -> str | None:
+    value = obj.get(key)
+    if value is None and not required:
+        return None
+    if not isinstance(value, str) or not value.strip():
+        found = "missing" if value is None else f"{value!r}, not a text"
+        raise UserError(f"{source}: {_join(where, key)} is {found}")
+    return value.strip()
+
+
+def _instant(obj: dict, key: str, where: str, source: str) -> datetime:
+    """Aware UTC datetime, rounded to the second, from an ISO 8601 text with Z or offset."""
+    text = _text(obj, key, where, source)
+    try:
+        moment = datetime.fromisoformat(text)
+    except ValueError:
+        raise UserError(f"{source}: {_join(where, key)}: '{text}' is not an ISO 8601 time "
+                        "(e.g. 2027-03-01T21:30:00Z)") from None
+    if moment.tzinfo is None:
+        raise UserError(f"{source}: {_join(where, key)}: '{text}' has no Z or UTC offset")
+    moment = moment.astimezone(timezone.utc)
+    return (moment + timedelta(microseconds=500_000)).replace(microsecond=0)
+
+
+def _span(obj: dict, start_key: str, end_key: str, where: str, source: str):
+    start = _instant(obj, start_key, where, source)
+    end = _instant(obj, end_key, where, source)
+    if end <= start:  # RFC 5545 section 3.8.2.2: DTEND later than DTSTART
+        raise UserError(f"{source}: {_join(where, end_key)} is not after {start_key}")
+    return start, end
+
+
+def _join(where: str, key: str) -> str:
+    return f"{where}.{key}" if where else key
+
+
+def _zone(site: dict, source: str) -> ZoneInfo:
+    name = _text(site, "timezone", "site", source)
+    try:
+        return ZoneInfo(name)
+    except (ZoneInfoNotFoundError, ValueError):
+        raise UserError(f"{source}: site.timezone '{name}' is not a known IANA time zone "
+                        "(e.g. Europe/London)") from None
+
+
+def _alarm_lead(doc: dict, alarm_minutes, source: str) -> int:
+    if alarm_minutes is not None:
+        value, name = alarm_minutes, "alarm_minutes"
+    else:
+        settings = _member(doc, "settings", "", source, required=False) or {}
+        value = _number(settings, "alarm_minutes", "settings", source, required=False)
+        value, name = (DEFAULT_ALARM_MINUTES if value is None else value), "settings.alarm_minutes"
+    if isinstance(value, bool) or not isinstance(value, (int, float)) or not math.isfinite(value):
+        raise UserError(f"{source}: {name} must be a number of minutes, found {value!r}")
+    if not 0 <= value <= MAX_ALARM_MINUTES or value != int(value):
+        raise UserError(f"{source}: {name} = {value} is not a whole number of minutes in "
+                        f"[0, {MAX_ALARM_MINUTES}]")
+    return int(value)
+
+
+# ------------------------------------------------------------------- events
+
+def plan_events(doc: dict, source: str = "plan") -> list[PlanEvent]:
+    """The calendar tasks of a checked plan document, in time order."""
+    kind = _schema_kind(doc, source)
+    site = _member(doc, "site", "", source)
+    _text(site, "name", "site", source)
+    _number(site, "latitude_deg", "site", source, -90, 90)
+    _number(site, "longitude_deg", "site", source, -180, 360)
+    tz = _zone(site, source)
+    settings = _member(doc, "settings", "", source, required=False) or {}
+    events = (_drift_events(doc, site, settings, tz, source) if kind == "drift"
+              else _survey_events(doc, site, tz, source))
+    return sorted(events, key=lambda e: (e.start_utc, EVENT_KINDS.index(e.kind)))
+
+
+def _drift_events(doc, site, settings, tz, source) -> list[PlanEvent]:
+    bin_width_deg = _number(settings, "bin_width_deg", "settings", source, 0, 360,
+                            required=False) or 1.0
+    events = []
+    for i, day in enumerate(_member(doc, "days", "", source, kind=list)):
+        where = f"days[{i}]"
+        if not isinstance(day, dict):
+            raise UserError(f"{source}: {where} must be an object, found {_json_type(day)}")
+        recordings = _member(day, "recordings", where, source, kind=list, required=False) or []
+        park = _member(day, "park", where, source, required=bool(recordings))
+        if park is not None:
+            park = _park(park, f"{where}.park", source)
+        tuning = _member(day, "tuning", where, source, required=False)
+        centre_mhz = (None if tuning is None
+                      else _number(tuning, "centre_mhz", f"{where}.tuning", source, 0))
+        windows = []
+        for j, rec in enumerate(recordings):
+            rec_where = f"{where}.recordings[{j}]"
+            if not isinstance(rec, dict):
+                raise UserError(f"{source}: {rec_where} must be an object, found {_json_type(rec)}")
+            # A recording before a move that day belongs to the previous setting: a plan
+            # records each recording's own dish setting in "dish".
+            rec_park = park
+            if isinstance(rec.get("dish"), dict):
+                rec_park = _park({**rec["dish"], "move": False}, f"{rec_where}.dish", source)
+            windows.append(_recording(rec, rec_where, rec_park, tuning, centre_mhz, bin_width_deg,
+                                      site, tz, source))
+        if park is not None and park["move"]:
+            events.append(_repark(park, windows, centre_mhz, site, tz))
+        events.extend(event for event, _ in windows)
+    return events
+
+
+def _park(park: dict, where: str, source: str) -> dict:
+    move = park.get("move", False)
+    if not isinstance(move, bool):
+        raise UserError(f"{source}: {where}.move must be true or false, found {move!r}")
+    out = {
+        "alt_deg": _number(park, "alt_deg", where, source, -90, 90),
+        "az_deg": _number(park, "az_deg", where, source, -360, 360),
+        "dec_deg": _number(park, "dec_deg", where, source, -90, 90, required=False),
+        "facing": park.get("facing") if park.get("facing") in ("north", "south") else None,
+        "move": move,
+    }
+    if move:
+        out["start"], out["end"] = _span(park, "move_start_utc", "move_end_utc", where, source)
+    return out
+
+
+def _recording(rec, where, park, tuning, centre_mhz, bin_width_deg, site, tz,
+               source) -> tuple[PlanEvent, str]:
+    """The recording's event and its short longitude range ('54–57°')."""
+    start, end = _span(rec, "start_utc", "end_utc", where, source)
+    l_start = _number(rec, "l_start_deg", where, source, -360, 360)
+    l_end = _number(rec, "l_end_deg", where, source, -360, 360)
+    bins = rec.get("l_bins") or []
+    if not isinstance(bins, list) or not all(_is_number(b) for b in bins):
+        raise UserError(f"{source}: {where}.l_bins must be a list of numbers")
+    new_bins = rec.get("new_bins") or []
+    if not isinstance(new_bins, list) or not all(_is_number(b) for b in new_bins):
+        raise UserError(f"{source}: {where}.new_bins must be a list of numbers")
+    l_text = _l_range(l_start, l_end)
+    summary = f"HI recording l {l_text} (dish {_dish_short(park)})"
+    lines = [
+        f"HI drift recording, {_clock_span(start, end, tz)} "
+        f"({_minutes(start, end)} min, {tz.key} time).",
+        f"Dish: leave it parked at {_pointing_text(park)}; do not move it while recording.",
+    ]
+    lines += _receiver_lines(tuning, centre_mhz)
+    sky = f"Sky: galactic longitude l {l_start:.1f}° → {l_end:.1f}° drifts through the beam"
+    if bins:
+        sky += f" ({bin_width_deg:g}° bins {_bins_text(bins, bin_width_deg)})"
+    sky += "."
+    if new_bins:
+        sky += (f" Bins {_bins_text(new_bins, bin_width_deg)} reach the target depth with "
+                "this recording.")
+    lines.append(sky)
+    lines += _lsr_lines(rec, where, source)
+    lines += _sun_moon_lines(rec, where, source)
+    lines += ["", SAFETY_TEXT]
+    # Bins, not the exact longitudes, so a recomputed plan keeps the UID.
+    ident_bins = (f"{bins[0]:g}..{bins[-1]:g}" if bins else f"{l_start:.0f}..{l_end:.0f}")
+    event = PlanEvent("recording", start, end, summary, "\n".join(lines),
+                      _identity(site, "recording", start, ident_bins))
+    return event, l_text
+
+
+def _repark(park, windows, centre_mhz, site, tz) -> PlanEvent:
+    start, end = park["start"], park["end"]
+    if park["facing"]:
+        summary = f"Move dish to elevation {park['alt_deg']:.1f}° facing {park['facing']}"
+    else:
+        summary = (f"Move dish to elevation {park['alt_deg']:.1f}°, "
+                   f"azimuth {park['az_deg'] % 360:.1f}°")
+    lines = [
+        f"Re-park the dish between {_clock_span(start, end, tz, sep=' and ')} "
+        f"({tz.key} time).",
+        f"Set it to {_pointing_text(park)}, then leave it parked there until the next "
+        "re-park task.",
+    ]
+    if centre_mhz is not None:
+        lines.append(f"Receiver: set the centre frequency to {centre_mhz:.3f} MHz for today's "
+                     "recordings.")
+    if windows:
+        lines.append("Today's recordings from this pointing: "
+                     + "; ".join(f"{_clock_span(w.start_utc, w.end_utc, tz)} (l {l_text})"
+                                 for w, l_text in windows) + ".")
+    lines += ["", SAFETY_TEXT]
+    return PlanEvent("repark", start, end, summary, "\n".join(lines),
+                     _identity(site, "repark", start, ""))
+
+
+def _survey_events(doc, site, tz, source) -> list[PlanEvent]:
+    events = []
+    slews: list[tuple[datetime, datetime]] = []
+    for i, block in enumerate(_member(doc, "blocks", "", source, kind=list)):
+        where = f"blocks[{i}]"
+        if not isinstance(block, dict):
+            raise UserError(f"{source}: {where} must be an object, found {_json_type(block)}")
+        kind = block.get("kind")
+        if kind not in ("target", "reference", "slew"):
+            raise UserError(f"{source}: {where}.kind is {kind!r}; expected target, reference "
+                            "or slew")
+        start, end = _span(block, "start_utc", "end_utc", where, source)
+        if kind == "slew":
+            slews.append((start, end))
+            continue
+        events.append(_block(block, kind, start, end, slews, site, tz, where, source))
+        slews = []
+    return events
+
+
+def _block(block, kind, start, end, slews, site, tz, where, source) -> PlanEvent:
+    name = _text(block, "name", where, source)
+    alt0 = _number(block, "alt_start_deg", where, source, -90, 90)
+    az0 = _number(block, "az_start_deg", where, source, -360, 720) % 360
+    alt1 = _number(block, "alt_end_deg", where, source, -90, 90, required=False)
+    az1 = _number(block, "az_end_deg", where, source, -360, 720, required=False)
+    what = "" if kind == "target" else "reference "
+    summary = f"Point dish at {what}{name} (az {az0:.0f}°, el {alt0:.0f}°)"
+    role = "target" if kind == "target" else "reference position"
+    lines = [f"Observe {name} ({role}), {_clock_span(start, end, tz)} "
+             f"({_minutes(start, end)} min, {tz.key} time)."]
+    for s0, s1 in slews:
+        lines.append(f"First the dish slews into position, {_clock_span(s0, s1, tz)} "
+                     f"({_minutes(s0, s1)} min).")
+    point = f"Point the dish at azimuth {az0:.1f}°, elevation {alt0:.1f}°"
+    if alt1 is not None and az1 is not None:
+        point += (f"; the mount tracks to azimuth {az1 % 360:.1f}°, elevation {alt1:.1f}° "
+                  "by the end")
+    lines.append(point + " (azimuth from north through east).")
+    l_deg = _number(block, "l_deg", where, source, -360, 360, required=False)
+    b_deg = _number(block, "b_deg", where, source, -90, 90, required=False)
+    ra_deg = _number(block, "ra_deg", where, source, -360, 360, required=False)
+    dec_deg = _number(block, "dec_deg", where, source, -90, 90, required=False)
+    pos = []
+    if l_deg is not None and b_deg is not None:
+        pos.append(f"l {l_deg:.1f}°, b {b_deg:+.1f}°")
+    if ra_deg is not None and dec_deg is not None:
+        pos.append(f"RA {ra_deg:.2f}°, Dec {dec_deg:+.2f}° (ICRS)")
+    if pos:
+        lines.append("Position: " + "; ".join(pos) + ".")
+    tuning = _member(block, "tuning", where, source, required=False)
+    centre_mhz = None if tuning is None else _number(tuning, "centre_mhz", f"{where}.tuning",
+                                                     source, 0)
+    lines += _receiver_lines(tuning, centre_mhz)
+    lines += _lsr_lines(block, where, source)
+    lines += _sun_moon_lines(block, where, source)
+    lines += ["", SAFETY_TEXT]
+    return PlanEvent(kind, start, end, summary, "\n".join(lines),
+                     _identity(site, kind, start, name))
+
+
+def _identity(site: dict, kind: str, start_utc: datetime, extra: str) -> str:
+    # To the minute: a recomputed plan moves times by fractions of a second.
+    return f"{site['name'].strip()}|{kind}|{start_utc:%Y-%m-%dT%H:%MZ}|{extra}"
+
+
+def _is_number(value) -> bool:
+    return isinstance(value, (int, float)) and not isinstance(value, bool) and math.isfinite(value)
+
+
+# ------------------------------------------------------------------- wording
+
+def _l_range(l_start_deg: float, l_end_deg: float) -> str:
+    a, b = round(l_start_deg) % 360, round(l_end_deg) % 360
+    return f"{a}°" if a == b else f"{a}–{b}°"
+
+
+def _dish_short(park: dict | None) -> str:
+    if park is None:
+        return "parked"
+    if park["facing"]:
+        return f"{park['alt_deg']:.1f}° {park['facing'][0].upper()}"
+    return f"el {park['alt_deg']:.1f}°, az {park['az_deg'] % 360:.0f}°"
+
+
+def _pointing_text(park: dict) -> str:
+    text = f"elevation {park['alt_deg']:.1f}°, azimuth {park['az_deg'] % 360:.1f}°"
+    extras = []
+    if park["facing"]:
+        extras.append(f"facing {park['facing']}")
+    if park["dec_deg"] is not None:
+        extras.append(f"declination {park['dec_deg']:+.1f}°")
+    return text + (f" ({', '.join(extras)})" if extras else "")
+
+
+def _receiver_lines(tuning: dict | None, centre_mhz: float | None) -> list[str]:
+    if centre_mhz is None:
+        return []
+    line = f"Receiver: centre frequency {centre_mhz:.3f} MHz"
+    low, high = (tuning or {}).get("line_low_mhz"), (tuning or {}).get("line_high_mhz")
+    if _is_number(low) and _is_number(high):
+        line += f"; the HI line is expected between {low:.3f} and {high:.3f} MHz"
+    line += "."
+    if (tuning or {}).get("fits") is False:
+        line += " The expected line is wider than the usable band on this setting."
+    return [line]
+
+
+def _lsr_lines(obj: dict, where: str, source: str) -> list[str]:
+    lo = _number(obj, "lsr_corr_min_kms", where, source, required=False)
+    hi = _number(obj, "lsr_corr_max_kms", where, source, required=False)
+    if lo is None or hi is None:
+        return []
+    return [f"Doppler: LSR correction {lo:+.1f} to {hi:+.1f} km/s during this time "
+            "(added to a topocentric velocity it gives the LSR velocity)."]
+
+
+def _sun_moon_lines(obj: dict, where: str, source: str) -> list[str]:
+    parts = []
+    sun = _number(obj, "sun_sep_min_deg", where, source, 0, 180, required=False)
+    moon = _number(obj, "moon_sep_min_deg", where, source, 0, 180, required=False)
+    if sun is not None:
+        parts.append(f"Sun at least {sun:.0f}° from the beam")
+    if moon is not None:
+        parts.append(f"Moon at least {moon:.0f}°")
+    night = obj.get("night")
+    if isinstance(night, bool):
+        parts.append("at night" if night else "in daylight")
+    return ["; ".join(parts) + "."] if parts else []
+
+
+def _bins_text(bins: list, width_deg: float) -> str:
+    """Bin starts as runs: [53, 54, 55, 58] -> '53–55, 58' (runs may wrap through 360)."""
+    runs: list[list[float]] = []
+    for b in bins:
+        if runs and math.isclose((b - runs[-1][-1]) % 360.0, width_deg, abs_tol=1e-6):
+            runs[-1].append(b)
+        else:
+            runs.append([b])
+    return ", ".join(f"{r[0]:g}" if len(r) == 1 else f"{r[0]:g}–{r[-1]:g}" for r in runs)
+
+
+def _minutes(start: datetime, end: datetime) -> int:
+    return round((end - start).total_seconds() / 60)
+
+
+def _clock_span(start_utc: datetime, end_utc: datetime, tz: ZoneInfo, sep: str = "–") -> str:
+    """'02:20–03:15 BST'; zone names at both ends across a clock change, and
+    weekday and date when the span runs past midnight."""
+    a, b = start_utc.astimezone(tz), end_utc.astimezone(tz)
+    form = "%a %d %b %H:%M" if a.date() != b.date() else "%H:%M"
+    if a.tzname() != b.tzname():
+        joiner = " – " if sep == "–" else sep
+        return f"{a:{form}} {a.tzname()}{joiner}{b:{form}} {b.tzname()}"
+    return f"{a:{form}}{sep}{b:{form}} {b.tzname()}"
+
+
+# ------------------------------------------------------------------- calendar
+
+def plan_calendar(doc: dict, alarm_minutes: int | None = None,
+                  stamp_utc: datetime | None = None) -> icalendar.Calendar:
+    """An RFC 5545 calendar of a plan's tasks.
+
+    ``alarm_minutes``: reminder lead before each event start (default the
+    plan's ``settings.alarm_minutes``, else 15). ``stamp_utc``: DTSTAMP of every
+    event (default now). Raises UserError for a plan that fails ``check_plan``.
+    """
+    events = plan_events(doc, "plan")
+    lead_min = _alarm_lead(doc, alarm_minutes, "plan")
+    site = doc["site"]
+    tz = ZoneInfo(site["timezone"].strip())
+    stamp = _stamp(stamp_utc)
+    name = site["name"].strip()
+    cal = icalendar.Calendar()
+    cal.add("prodid", PRODID)
+    cal.add("version", "2.0")
+    cal.add("calscale", "GREGORIAN")
+    cal.add("x-wr-calname", f"HI plan - {name}")
+    cal.add("name", f"HI plan - {name}")  # RFC 7986 section 5.1
+    cal.add("description", f"hiplan {doc.get('kind', '')} plan for {name}; "
+                           f"times in {tz.key}. A task keeps its UID when the plan is exported "
+                           "again.")
+    first, last = _coverage(doc, events)
+    cal.add_component(vtimezone(tz, first, last))
+    for ev in events:
+        cal.add_component(_vevent(ev, site, tz, stamp, lead_min))
+    missing = cal.get_missing_tzids()
+    if missing:  # a TZID without its VTIMEZONE makes the file invalid: a bug here
+        raise RuntimeError(f"no VTIMEZONE written for {sorted(missing)}")
+    return cal
+
+
+def calendar_bytes(cal: icalendar.Calendar) -> bytes:
+    """The calendar as RFC 5545 octets (UTF-8, CRLF line ends, folded at 75 octets)."""
+    return cal.to_ical()
+
+
+def event_uid(identity: str) -> str:
+    """Stable UID: UUID version 5 (SHA-1, RFC 4122 section 4.3) of ``identity``."""
+    return str(uuid.uuid5(UID_NAMESPACE, identity))
+
+
+def _stamp(stamp_utc: datetime | None) -> datetime:
+    if stamp_utc is None:
+        stamp_utc = datetime.now(timezone.utc)
+    if stamp_utc.tzinfo is None:
+        raise ValueError("stamp_utc must be an aware datetime")
+    return stamp_utc.astimezone(timezone.utc).replace(microsecond=0)
+
+
+def _vevent(ev: PlanEvent, site: dict, tz: ZoneInfo, stamp: datetime, lead_min: int):
+    vevent = icalendar.Event()
+    vevent.add("uid", event_uid(ev.identity))
+    vevent.add("dtstamp", stamp)
+    vevent.add("dtstart", _wall_or_utc(ev.start_utc, tz))
+    vevent.add("dtend", _wall_or_utc(ev.end_utc, tz))
+    vevent.add("summary", ev.summary)
+    vevent.add("description", ev.description)
+    vevent.add("location", site["name"].strip())
+    # RFC 5545 section 3.8.1.6: six decimals (about 0.1 m) are plenty.
+    vevent.add("geo", (round(float(site["latitude_deg"]), 6),
+                       round(float(site["longitude_deg"]), 6)))
+    vevent.add("categories", ["hiplan", _CATEGORY[ev.kind]])
+    alarm = icalendar.Alarm()
+    alarm.add("action", "DISPLAY")
+    alarm.add("trigger", timedelta(minutes=-lead_min))
+    when = f"in {lead_min} min" if lead_min else "now"
+    alarm.add("description", f"{ev.summary} - starts {when}")
+    vevent.add_component(alarm)
+    return vevent
+
+
+def _wall_or_utc(moment_utc: datetime, tz: ZoneInfo) -> datetime:
+    """Local aware time, or UTC when the local wall clock is the second of two
+    (RFC 5545 section 3.3.5: a repeated local time means its first occurrence)."""
+    local = moment_utc.astimezone(tz)
+    if local.fold and local.replace(fold=0).utcoffset() != local.utcoffset():
+        return moment_utc
+    return local
+
+
+def _coverage(doc: dict, events: list[PlanEvent]) -> tuple[datetime, datetime]:
+    """UTC span the VTIMEZONE must describe: the events and the plan period."""
+    moments = [e.start_utc for e in events] + [e.end_utc for e in events]
+    period = doc.get("period")
+    if isinstance(period, dict):
+        for key in ("start_utc", "end_utc"):
+            try:
+                moments.append(_instant(period, key, "period", "plan"))
+            except UserError:
+                pass  # the period is informative here; the events decide
+    if not moments:
+        now = datetime.now(timezone.utc)
+        return now, now
+    return min(moments), max(moments)
+
+
+def vtimezone(tz: ZoneInfo, first_utc: datetime, last_utc: datetime) -> icalendar.Timezone:
+    """VTIMEZONE for ``tz`` over the whole local years holding [first_utc, last_utc].
+
+    One observance sub-component per offset change, DTSTART being the onset as
+    a local time in the offset before the change (TZOFFSETFROM), as in the
+    RFC 5545 section 3.6.5 examples (a 02:00 EST onset for US daylight time).
+    """
+    start = datetime(first_utc.astimezone(tz).year, 1, 1, tzinfo=tz).astimezone(timezone.utc)
+    end = datetime(last_utc.astimezone(tz).year + 1, 1, 1, tzinfo=tz).astimezone(timezone.utc)
+    comp = icalendar.Timezone()
+    comp.add("tzid", tz.key)
+    opening = start.astimezone(tz)
+    comp.add_component(_observance(opening.replace(tzinfo=None), opening, opening.utcoffset()))
+    for onset_utc, offset_from in _transitions(tz, start, end):
+        after = onset_utc.astimezone(tz)
+        wall = (onset_utc + offset_from).replace(tzinfo=None)
+        comp.add_component(_observance(wall, after, offset_from))
+    return comp
+
+
+def _observance(onset_wall: datetime, after: datetime, offset_from: timedelta):
+    dst = after.dst()
+    daylight = dst is not None and dst > timedelta(0)
+    sub = icalendar.TimezoneDaylight() if daylight else icalendar.TimezoneStandard()
+    sub.add("dtstart", onset_wall)
+    sub.add("tzoffsetfrom", offset_from)
+    sub.add("tzoffsetto", after.utcoffset())
+    sub.add("tzname", after.tzname() or _offset_name(after.utcoffset()))
+    return sub
+
+
+def _offset_name(offset: timedelta) -> str:
+    minutes = round(offset.total_seconds() / 60)
+    sign = "+" if minutes >= 0 else "-"
+    return f"UTC{sign}{abs(minutes) // 60:02d}{abs(minutes) % 60:02d}"
+
+
+def _transitions(tz: ZoneInfo, start_utc: datetime, end_utc: datetime):
+    """(first instant of the new offset, offset before) for each change in [start, end).
+
+    ``zoneinfo`` has no public transition list, so the offset is sampled daily
+    (no zone changes offset twice within a day) and each change is bisected to
+    the second (tz database transitions fall on whole seconds).
+    """
+    day = timedelta(days=1)
+    out = []
+    t = start_utc
+    before = t.astimezone(tz).utcoffset()
+    while t < end_utc:
+        nxt = min(t + day, end_utc)
+        after = nxt.astimezone(tz).utcoffset()
+        if after != before:
+            lo, hi = t, nxt
+            while hi - lo > timedelta(seconds=1):
+                mid = lo + (hi - lo) / 2
+                mid = mid.replace(microsecond=0)
+                if mid.astimezone(tz).utcoffset() == before:
+                    lo = mid
+                else:
+                    hi = mid
+            out.append((hi, before))
+            before = after
+        t = nxt
+    return out
