@@ -424,8 +424,9 @@ def month_renderable(doc: dict):
             dish = "not parked"
         else:
             dish = f"Dec {park['dec_deg']:+.1f} = el {park['alt_deg']:.1f}° {park['facing']}"
-            if park["move"] and previous is not None:
-                dish = f"Dec {previous['dec_deg']:+.1f} → " + dish
+            before = (day["recordings"][0].get("dish") if day["recordings"] else None) or previous
+            if park["move"] and before is not None and before["dec_deg"] != park["dec_deg"]:
+                dish = f"Dec {before['dec_deg']:+.1f} → " + dish
         previous = park or previous
         move = (f"{_hhmm(park['move_start_local'])}–{_hhmm(park['move_end_local'])}"
                 if park and park["move"] else "")

@@ -103,6 +103,7 @@ def build_plan(args, site):
     pointings = candidate_pointings(site, args.step)
     if not pointings:
         raise UserError(f"{site.source}: no declination is reachable with this dish's limits")
+    pointings = _with_start(site, args, pointings)
     result = sweep(site, pointings, start_mjd, end_mjd, args.band, args.night_only,
                    intervals if args.record_in_windows else None, args.lsr_def, per_occurrence=True)
     if not any(r.bin_usable_s.sum() > 0 for r in result.rows):
@@ -137,6 +138,21 @@ def _want_ranges(text):
         lo, hi = part.split("-")
         out.append([float(lo), float(hi)])
     return out
+
+
+def _with_start(site, args, pointings):
+    """Add the dish's current declination to the candidates, so staying is exact."""
+    from ..pointing import on_meridian_at_dec, reachability_problem
+    dec = args.start_dec if args.start_dec is not None else site.default_pointing.get("dec_deg")
+    if dec is None:
+        return pointings
+    current = on_meridian_at_dec(site, dec)
+    if reachability_problem(site, current) is not None:
+        raise UserError(f"--start-dec: the dish cannot be parked at declination {dec:g} "
+                        f"({reachability_problem(site, current)})")
+    if any(abs(p.dec_deg - dec) < 1e-9 for p in pointings):
+        return pointings
+    return sorted(pointings + [current], key=lambda p: p.dec_deg)
 
 
 def _start_row(args, site, result):
