@@ -409,7 +409,8 @@ def month_renderable(doc: dict):
     s, st, summ = doc["site"], doc["settings"], doc["summary"]
     head = Text()
     head.append(s["name"], style="bold")
-    head.append(f"  {doc['period']['start_local'][:10]} – {doc['period']['end_local'][:10]}  "
+    last_day = doc["days"][-1]["date"] if doc["days"] else doc["period"]["end_local"][:10]
+    head.append(f"  {doc['period']['start_local'][:10]} – {last_day}  "
                 f"(target {st['target_minutes']:g} min per bin"
                 + (", night only" if st["night_only"] else "")
                 + (f"; windows: {'; '.join(st['windows'])}" if st["windows"] else "") + ")")
