@@ -29,9 +29,7 @@ Pure: no file access except the thin ``read_plan`` helper.
 """
 from __future__ import annotations
 
-import json
 import math
-import os
 import uuid
 from dataclasses import dataclass
 from datetime import datetime, timedelta, timezone
@@ -40,8 +38,8 @@ from zoneinfo import ZoneInfo, ZoneInfoNotFoundError
 import icalendar
 
 from .errors import UserError
+from .planfile import PLAN_SCHEMAS
 
-PLAN_SCHEMAS = ("hiplan.plan/1", "hiplan.survey/1")
 _KIND_OF_SCHEMA = {"hiplan.plan/1": "drift", "hiplan.survey/1": "survey"}
 
 PRODID = "-//hiplan//hiplan 0.1//EN"
@@ -51,7 +49,6 @@ UID_NAMESPACE = uuid.UUID("bc7bf818-f5b0-426a-8568-463643dd1c93")
 
 DEFAULT_ALARM_MINUTES = 15  # common practice for a calendar reminder
 MAX_ALARM_MINUTES = 7 * 24 * 60  # a week: a longer lead is almost surely a typo
-MAX_PLAN_BYTES = 50_000_000  # a plan of two years is a few MB; more is not a plan file
 
 # Protected radio-astronomy band: ITU Radio Regulations No. 5.340, "all
 # emissions are prohibited in the band 1400-1427 MHz" (from memory).
@@ -92,29 +89,10 @@ def check_plan(doc: dict, source: str) -> None:
 
 
 def read_plan(path) -> dict:
-    """Read a plan JSON file and check it; every problem is a one-line UserError."""
-    src = str(path)
-    try:
-        with open(path, "rb") as handle:
-            if os.fstat(handle.fileno()).st_size > MAX_PLAN_BYTES:
-                raise UserError(f"{src}: larger than {MAX_PLAN_BYTES / 1e6:g} MB, not a plan file")
-            data = handle.read(MAX_PLAN_BYTES + 1)
-    except FileNotFoundError:
-        raise UserError(f"{src}: plan file not found") from None
-    except IsADirectoryError:
-        raise UserError(f"{src}: is a folder, not a plan file") from None
-    except OSError as exc:
-        raise UserError(f"{src}: cannot read plan file ({exc.strerror or exc})") from None
-    if len(data) > MAX_PLAN_BYTES:
-        raise UserError(f"{src}: larger than {MAX_PLAN_BYTES / 1e6:g} MB, not a plan file")
-    try:
-        doc = json.loads(data.decode("utf-8-sig"))
-    except UnicodeDecodeError:
-        raise UserError(f"{src}: not UTF-8 text, so not a plan file") from None
-    except json.JSONDecodeError as exc:
-        raise UserError(f"{src}: not valid JSON (line {exc.lineno}, column {exc.colno}: "
-                        f"{exc.msg})") from None
-    check_plan(doc, src)
+    """Read a plan file (``planfile.read_plan``) and check every field the calendar uses."""
+    from .planfile import read_plan as read_plan_file
+    doc = read_plan_file(path)
+    check_plan(doc, str(path))
     return doc
 
 

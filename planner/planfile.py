@@ -28,34 +28,57 @@ _DRIFT_KEYS = ("site", "period", "settings", "days", "summary")
 _SURVEY_KEYS = ("site", "period", "settings", "blocks", "unscheduled")
 
 
+MAX_PLAN_BYTES = 50_000_000  # a two-year plan is ~2 MB; anything this big is not a plan
+
+
 def read_plan(path) -> dict:
-    """Read and check a plan file; UserError naming the file for any problem."""
+    """Read and check a plan file; every problem is a one-line UserError naming the file.
+
+    The one reader for every plan consumer (calendar, brief, charts).
+    """
     src = str(path)
+    if Path(path).is_dir():
+        raise UserError(f"{src}: is a folder, not a plan file")
     try:
-        text = Path(path).read_text(encoding="utf-8")
+        with open(path, "rb") as handle:
+            data = handle.read(MAX_PLAN_BYTES + 1)
     except FileNotFoundError:
         raise UserError(f"{src}: plan file not found") from None
-    except (OSError, UnicodeDecodeError) as exc:
-        raise UserError(f"{src}: cannot read plan file ({exc})") from None
+    except OSError as exc:
+        raise UserError(f"{src}: cannot read plan file ({exc.strerror or exc})") from None
+    if len(data) > MAX_PLAN_BYTES:
+        raise UserError(f"{src}: larger than {MAX_PLAN_BYTES / 1e6:g} MB, not a plan file")
     try:
-        doc = json.loads(text)
+        doc = json.loads(data.decode("utf-8-sig"))
+    except UnicodeDecodeError:
+        raise UserError(f"{src}: not UTF-8 text, so not a plan file") from None
     except json.JSONDecodeError as exc:
-        raise UserError(f"{src}:{exc.lineno}: not valid JSON ({exc.msg})") from None
+        raise UserError(f"{src}:{exc.lineno}: not valid JSON ({exc.msg}, column {exc.colno})") from None
     check_plan(doc, src)
     return doc
 
 
 def check_plan(doc, src: str) -> None:
-    """UserError unless ``doc`` is a plan of a schema this version reads."""
-    if not isinstance(doc, dict) or "schema" not in doc:
+    """UserError unless ``doc`` is a plan of a schema this version reads, with its parts."""
+    if not isinstance(doc, dict):
+        raise UserError(f"{src}: not a hiplan plan (expected a JSON object)")
+    if "schema" not in doc:
         raise UserError(f"{src}: not a hiplan plan (no 'schema' field)")
-    if doc["schema"] not in PLAN_SCHEMAS:
-        raise UserError(f"{src}: plan schema '{doc['schema']}' is not supported "
-                        f"(this hiplan reads {', '.join(PLAN_SCHEMAS)})")
-    keys = _DRIFT_KEYS if doc["schema"] == DRIFT_SCHEMA else _SURVEY_KEYS
+    schema = doc["schema"]
+    if schema not in PLAN_SCHEMAS:
+        family = isinstance(schema, str) and schema.split("/")[0] in ("hiplan.plan", "hiplan.survey")
+        hint = " (written by another hiplan version)" if family else ""
+        raise UserError(f"{src}: schema {schema!r} is not a plan this hiplan reads "
+                        f"(expected {DRIFT_SCHEMA!r} or {SURVEY_SCHEMA!r}){hint}")
+    keys = _DRIFT_KEYS if schema == DRIFT_SCHEMA else _SURVEY_KEYS
     missing = [k for k in keys if k not in doc]
     if missing:
         raise UserError(f"{src}: plan is missing {', '.join(missing)}")
+    if not isinstance(doc["site"], dict):
+        raise UserError(f"{src}: field 'site' is not an object")
+    listing = "days" if schema == DRIFT_SCHEMA else "blocks"
+    if not isinstance(doc[listing], list):
+        raise UserError(f"{src}: field '{listing}' is not a list")
 
 
 def drift_plan_document(plan: MonthPlan, settings: dict, model: RotationModel,

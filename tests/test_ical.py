@@ -657,7 +657,7 @@ def test_wrong_schema_is_a_one_line_error_naming_the_file(tmp_path):
 
 def test_bad_plan_files_name_file_and_field(tmp_path):
     path = _write(tmp_path, '{"schema": "hiplan.plan/1", ')
-    assert _error(ical.read_plan, path).startswith(f"{path}: not valid JSON (line 1")
+    assert _error(ical.read_plan, path).startswith(f"{path}:1: not valid JSON")
     assert "not found" in _error(ical.read_plan, str(tmp_path / "missing.json"))
     plan = drift_plan()
     del plan["days"][1]["recordings"][2]["start_utc"]

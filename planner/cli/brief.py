@@ -1,0 +1,113 @@
+"""``hiplan brief``: a printable operator brief (HTML or Markdown) from a plan file."""
+from __future__ import annotations
+
+import io
+import sys
+from pathlib import Path
+
+from rich.console import Console
+
+from ..brief import (
+    brief_html,
+    brief_markdown,
+)
+from ..errors import UserError
+from ..planfile import read_plan as read_plan_file
+from ..outputs import check_writable, write_atomic
+
+NAME = "brief"
+HELP = "a printable operator brief (HTML or Markdown) from a plan file"
+
+MARKDOWN_SUFFIXES = (".md", ".markdown")
+HTML_SUFFIXES = (".html", ".htm")
+# Chart functions of planner.plots drawn for each plan kind, with their names in the brief.
+CHARTS = {"drift": (("month", "month_chart"), ("depth", "depth_chart"))}
+CHART_DPI = 110
+
+
+def add_arguments(p) -> None:
+    p.add_argument("plan", type=Path, metavar="PLAN.json",
+                   help="plan file from 'hiplan month' (hiplan.plan/1) or 'hiplan survey' "
+                        "(hiplan.survey/1)")
+    p.add_argument("--output", "-o", type=Path,
+                   help="write here: a .md/.markdown name gives Markdown, anything else HTML "
+                        "(default: print to the terminal)")
+    p.add_argument("--markdown", action="store_true",
+                   help="Markdown instead of HTML (needed when printing Markdown to the terminal)")
+    p.add_argument("--no-charts", action="store_true", help="leave the charts out")
+    p.add_argument("--force", action="store_true", help="replace existing output files")
+    p.epilog = ("HTML is one self-contained page (charts embedded) to print or open offline. "
+                "Markdown refers to its charts as PNG files written beside it "
+                "(<name>-month.png, <name>-depth.png).")
+
+
+def read_plan(path: Path) -> dict:
+    """Read a plan file: ``planfile.read_plan`` (one-line errors naming the file)."""
+    return read_plan_file(path)
+
+
+def output_format(output: Path | None, markdown: bool) -> str:
+    """"markdown" or "html" from the output suffix and --markdown."""
+    suffix = output.suffix.lower() if output is not None else ""
+    if markdown and suffix in HTML_SUFFIXES:
+        raise UserError(f"--markdown: the output file {output} ends in {suffix}; "
+                        "use a .md name or drop --markdown")
+    return "markdown" if markdown or suffix in MARKDOWN_SUFFIXES else "html"
+
+
+def chart_pngs(doc: dict) -> dict[str, bytes]:
+    """PNG bytes of the plan's charts; empty while planner.plots is not available."""
+    try:
+        from .. import plots
+    except ImportError:
+        return {}
+    pngs = {}
+    for key, func_name in CHARTS.get(doc.get("kind"), ()):
+        func = getattr(plots, func_name, None)
+        if func is None:
+            continue
+        fig = func(doc)
+        buffer = io.BytesIO()
+        fig.savefig(buffer, format="png", dpi=CHART_DPI)
+        _close(fig)
+        pngs[key] = buffer.getvalue()
+    return pngs
+
+
+def _close(fig) -> None:
+    # Figures made through pyplot stay registered until closed; plain Figures need nothing.
+    import matplotlib.pyplot as plt
+    plt.close(fig)
+
+
+def chart_path(output: Path, key: str) -> Path:
+    return output.with_name(f"{output.stem}-{key}.png")
+
+
+def run(args, console: Console) -> int:
+    doc = read_plan(args.plan)
+    fmt = output_format(args.output, args.markdown)
+    pngs = {} if args.no_charts else None
+    if args.output is not None:
+        check_writable(args.output, args.force)
+        if fmt == "markdown":
+            pngs = pngs if pngs is not None else chart_pngs(doc)
+            for key in pngs:
+                check_writable(chart_path(args.output, key), args.force)
+    if fmt == "html":
+        text = brief_html(doc, pngs if pngs is not None else chart_pngs(doc))
+    elif args.output is None:
+        text = brief_markdown(doc)           # no file to put chart images beside
+    else:
+        written = {}
+        for key, data in pngs.items():
+            path = write_atomic(chart_path(args.output, key), data, args.force)
+            written[key] = path.name          # relative: the images sit beside the Markdown
+        text = brief_markdown(doc, written)
+    if args.output is None:
+        sys.stdout.write(text)
+        return 0
+    write_atomic(args.output, text, args.force)
+    if console.file is sys.stdout:
+        Console(stderr=True).print(f"wrote {args.output}", markup=False, highlight=False)
+    return 0
