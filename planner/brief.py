@@ -471,6 +471,10 @@ def _drift_day_row(day: dict, bin_width) -> Row:
                 f"Sun {_deg(rec.get('sun_sep_min_deg'), 0)}")
         if rec.get("new_bins"):
             line += f", completes {_bin_ranges(rec.get('new_bins'), bin_width)}"
+        dish = rec.get("dish") or {}
+        if moving and dish and dish.get("dec_deg") != park.get("dec_deg"):
+            # Recorded before the move, with the previous setting.
+            line += f" (before the move: dish still at elevation {_deg(dish.get('alt_deg'))})"
         recordings.append(line)
     tuning = day.get("tuning") or {}
     receiver = [f"{_num(tuning.get('centre_mhz'), '.3f')} MHz"] if tuning else ["—"]
@@ -501,8 +505,8 @@ def _drift_day_section(doc: dict) -> Section:
     blocks = [
         Paragraph(f"{clock} Start each recording at or before its first time and stop at or after "
                   "its second (the times are rounded outward to the minute). On a MOVE day, set the "
-                  "dish inside the given window, before that day's recordings; otherwise leave it "
-                  "where it is.", "note"),
+                  "dish inside the given window; recordings marked \"before the move\" are made with "
+                  "the previous setting. Otherwise leave the dish where it is.", "note"),
         table,
     ]
     reasons = Counter(_text(s.get("reason")) for day in days for s in day.get("skipped") or ())

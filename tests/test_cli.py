@@ -147,7 +147,11 @@ def test_demo_writes_files(tmp_path, capsys):
     code, out, _ = run(capsys, "demo", "--output-dir", str(tmp_path / "demo"))
     assert code == 0
     files = sorted(p.name for p in (tmp_path / "demo").iterdir())
-    assert "crossings-hollowmere.json" in files and "tune-hollowmere.txt" in files
+    for name in ("park-hollowmere.txt", "atlas-hollowmere.png", "plan-hollowmere.json",
+                 "plan-hollowmere.ics", "month-hollowmere.png", "brief-hollowmere.html",
+                 "brief-hollowmere.md", "tune-hollowmere.txt", "crossings-hollowmere.csv"):
+        assert name in files
+    assert "wanted 1° bins" in out
     assert all((tmp_path / "demo" / f).stat().st_size > 100 for f in files)
     code, _, err = run(capsys, "demo", "--output-dir", str(tmp_path / "demo"))
     assert code == 2 and "already exists" in err

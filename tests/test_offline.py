@@ -42,7 +42,9 @@ def _run_blocked(argv, cwd):
 def test_demo_runs_with_network_blocked(tmp_path):
     proc = _run_blocked(["demo", "--output-dir", str(tmp_path / "out")], tmp_path)
     assert proc.returncode == 0, proc.stderr
-    assert (tmp_path / "out" / "crossings-hollowmere.json").exists()
+    for name in ("plan-hollowmere.json", "plan-hollowmere.ics", "brief-hollowmere.html",
+                 "atlas-hollowmere.png"):
+        assert (tmp_path / "out" / name).exists()
 
 
 def test_past_iers_table_end_runs_offline(tmp_path):

@@ -151,8 +151,7 @@ def emit(args, console: Console, text: str | None, renderable=None) -> None:
     """Write ``text`` to --output atomically, or print it / the rich renderable."""
     if args.output is not None:
         write_atomic(args.output, text if text is not None else plain_text(renderable), args.force)
-        if console.file is sys.stdout:
-            Console(stderr=True).print(f"wrote {args.output}")
+        note(console, f"wrote {args.output}")
     elif renderable is not None:
         console.print(renderable)
     else:
@@ -172,3 +171,17 @@ def plain_text(renderable) -> str:
 def quiet_console() -> Console:
     """A console that discards output (for commands run inside the demo)."""
     return Console(file=open("/dev/null", "w"), width=120)
+
+
+def figure_bytes(fig, fmt: str) -> bytes:
+    """A matplotlib figure rendered to PNG or SVG bytes (written by the caller)."""
+    from io import BytesIO
+    buf = BytesIO()
+    fig.savefig(buf, format=fmt, dpi=120, bbox_inches="tight")
+    return buf.getvalue()
+
+
+def note(console: Console, text: str) -> None:
+    """A progress note on stderr, unless the command runs inside another (quiet console)."""
+    if console.file is sys.stdout:
+        Console(stderr=True).print(text, markup=False, highlight=False)

@@ -18,7 +18,7 @@ from ..report import month_renderable, to_json
 from ..site import load_site
 from ..timebase import local_day_span, parse_day
 from ..windows import never_occurs, read_windows, window_intervals_mjd
-from .common import add_lsr_definition, add_site, emit, number, today_at
+from .common import add_lsr_definition, add_site, emit, figure_bytes, note, number, today_at
 
 NAME = "month"
 HELP = "plan a month of drift scans: where to park each day, what to record"
@@ -62,6 +62,8 @@ def add_arguments(p) -> None:
     o.add_argument("--format", choices=("table", "json"), default="table")
     o.add_argument("--output", "-o", help="write the plan (JSON) to this file")
     o.add_argument("--ics", help="also write the calendar (.ics) here")
+    o.add_argument("--chart", help="also write the month chart here (.png or .svg) and the "
+                                   "per-bin depth chart beside it (<name>-depth.<ext>)")
     o.add_argument("--force", action="store_true", help="replace existing output files")
 
 
@@ -99,7 +101,8 @@ def build_plan(args, site):
             raise UserError(f"nothing to plan because the windows never occur in the {days} days "
                             f"from {label}")
         intervals = window_intervals_mjd(avail, start_mjd, end_mjd, site.tz)
-        windows_text = avail.describe()
+        # As written (our window syntax), so the plan can be read back by the charts.
+        windows_text = [rule.text for rule in avail.rules]
     pointings = candidate_pointings(site, args.step)
     if not pointings:
         raise UserError(f"{site.source}: no declination is reachable with this dish's limits")
@@ -164,14 +167,27 @@ def _start_row(args, site, result):
     return int(np.argmin(np.abs(decs - dec)))
 
 
+def _chart_paths(chart: str):
+    from pathlib import Path
+    path = Path(chart)
+    if path.suffix.lower() not in (".png", ".svg"):
+        raise UserError(f"--chart: '{chart}' must end in .png or .svg")
+    return [path, path.with_name(f"{path.stem}-depth{path.suffix}")]
+
+
 def run(args, console: Console) -> int:
     site = load_site(args.site)
-    outputs = [p for p in (args.output, args.ics) if p]
+    charts = _chart_paths(args.chart) if args.chart else []
+    outputs = [p for p in (args.output, args.ics) if p] + [str(c) for c in charts]
     for path in outputs:
         check_writable(path, args.force)
-    if args.ics and args.ics == args.output:
-        raise UserError("--ics and --output must be different files")
+    if len(set(outputs)) != len(outputs):
+        raise UserError("--output, --ics and --chart must be different files")
     _, doc = build_plan(args, site)
+    if charts:
+        from ..plots import depth_chart, month_chart
+        for fig, path in ((month_chart(doc), charts[0]), (depth_chart(doc), charts[1])):
+            write_atomic(path, figure_bytes(fig, path.suffix[1:].lower()), args.force)
     if args.output:
         write_atomic(args.output, to_json(doc), args.force)
     if args.ics:
@@ -182,5 +198,5 @@ def run(args, console: Console) -> int:
     elif args.format == "table":
         console.print(month_renderable(doc))
     for path in outputs:
-        Console(stderr=True).print(f"wrote {path}")
+        note(console, f"wrote {path}")
     return 0

@@ -12,7 +12,8 @@ from ..park import DEFAULT_TARGET_MINUTES, advise, candidate_pointings, parse_wa
 from ..report import PARK_FIELDS, park_document, park_renderable, to_csv, to_json
 from ..site import load_site
 from ..windows import never_occurs, read_windows, window_intervals_mjd
-from .common import add_lsr_definition, add_output, add_period, add_site, emit, number, period_span
+from .common import (add_lsr_definition, add_output, add_period, add_site, emit, figure_bytes, number,
+                     period_span)
 
 NAME = "park"
 HELP = "which declination to park a dish at, ranked for your goals"
@@ -98,7 +99,7 @@ def _write_plots(paths, result, advice, want, done, args, site) -> None:
     figures = [(atlas_figure(result, want, done, args.target_minutes, coverage_atlas), atlas_path),
                (sky_figure(result, advice[0], sky_track_map), sky_path)]
     for fig, path in figures:
-        write_atomic(path, _figure_bytes(fig, path.suffix.lstrip(".").lower()), args.force)
+        write_atomic(path, figure_bytes(fig, path.suffix.lstrip(".").lower()), args.force)
 
 
 def atlas_figure(result, want, done, target_minutes, coverage_atlas):
@@ -135,10 +136,3 @@ def sky_figure(result, best, sky_track_map):
     return sky_track_map(track.l_deg, track.b_deg, band_deg=result.band_deg, in_passage=in_passage,
                          sun_l_deg=sun_l, sun_b_deg=sun_b, sun_radius_deg=site.rules.sun_min_sep_deg,
                          title=title)
-
-
-def _figure_bytes(fig, fmt: str) -> bytes:
-    from io import BytesIO
-    buf = BytesIO()
-    fig.savefig(buf, format=fmt, dpi=120, bbox_inches="tight")
-    return buf.getvalue()
