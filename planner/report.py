@@ -93,20 +93,11 @@ def to_csv(records: list[dict], fields: tuple[str, ...]) -> str:
     return buf.getvalue()
 
 
-def compact_ranges(values) -> str:
-    """Integer bins as compact ranges, e.g. [28, 29, 30, 41] -> '28–30, 41'."""
-    nums = sorted({int(v) for v in values})
-    if not nums:
-        return "—"
-    parts, lo, prev = [], nums[0], nums[0]
-    for v in nums[1:] + [None]:
-        if v is not None and v == prev + 1:
-            prev = v
-            continue
-        parts.append(f"{lo}" if lo == prev else f"{lo}–{prev}")
-        if v is not None:
-            lo = prev = v
-    return ", ".join(parts)
+def compact_ranges(values_deg, bin_width_deg: float = 1.0) -> str:
+    """Bin starts (deg) as compact ranges, e.g. [28, 29, 30, 41] -> '28–30, 41'."""
+    from .park import compact_bins
+    text = compact_bins([round(v / bin_width_deg) for v in values_deg], bin_width_deg)
+    return "—" if text == "none" else text
 
 
 def _clock(mjd: float, tz: ZoneInfo) -> str:

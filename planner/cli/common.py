@@ -185,3 +185,19 @@ def note(console: Console, text: str) -> None:
     """A progress note on stderr, unless the command runs inside another (quiet console)."""
     if console.file is sys.stdout:
         Console(stderr=True).print(text, markup=False, highlight=False)
+
+
+def load_windows(text: str | None, site: Site, start_mjd: float, end_mjd: float):
+    """(Availability, UTC intervals) from --windows, or (None, None) without it.
+
+    A rota with no window in the period is an error: there is nothing to plan.
+    """
+    from ..windows import never_occurs, read_windows, window_intervals_mjd
+    if not text:
+        return None, None
+    avail = read_windows(text)
+    if never_occurs(avail, start_mjd, end_mjd, site.tz):
+        days = round(end_mjd - start_mjd)
+        raise UserError(f"nothing to plan because the windows never occur in the {days} days of "
+                        "the period (--windows)")
+    return avail, window_intervals_mjd(avail, start_mjd, end_mjd, site.tz)

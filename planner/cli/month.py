@@ -17,8 +17,8 @@ from ..planfile import drift_plan_document
 from ..report import month_renderable, to_json
 from ..site import load_site
 from ..timebase import local_day_span, parse_day
-from ..windows import never_occurs, read_windows, window_intervals_mjd
-from .common import add_lsr_definition, add_site, emit, figure_bytes, note, number, today_at
+from .common import (add_lsr_definition, add_site, emit, figure_bytes, load_windows, note, number,
+                     today_at)
 
 NAME = "month"
 HELP = "plan a month of drift scans: where to park each day, what to record"
@@ -94,15 +94,9 @@ def build_plan(args, site):
     done = coverage_minutes(read_log(args.log), bw) if args.log else np.zeros(want.size)
     target = (minutes_for_rms(site, args.target_rms) if args.target_rms
               else (args.target_minutes or DEFAULT_TARGET_MINUTES))
-    intervals, windows_text = None, []
-    if args.windows:
-        avail = read_windows(args.windows)
-        if never_occurs(avail, start_mjd, end_mjd, site.tz):
-            raise UserError(f"nothing to plan because the windows never occur in the {days} days "
-                            f"from {label}")
-        intervals = window_intervals_mjd(avail, start_mjd, end_mjd, site.tz)
-        # As written (our window syntax), so the plan can be read back by the charts.
-        windows_text = [rule.text for rule in avail.rules]
+    avail, intervals = load_windows(args.windows, site, start_mjd, end_mjd)
+    # As written (our window syntax), so the plan can be read back by the charts.
+    windows_text = [rule.text for rule in avail.rules] if avail else []
     pointings = candidate_pointings(site, args.step)
     if not pointings:
         raise UserError(f"{site.source}: no declination is reachable with this dish's limits")

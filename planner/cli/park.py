@@ -11,9 +11,8 @@ from ..outputs import check_writable, write_atomic
 from ..park import DEFAULT_TARGET_MINUTES, advise, candidate_pointings, parse_want
 from ..report import PARK_FIELDS, park_document, park_renderable, to_csv, to_json
 from ..site import load_site
-from ..windows import never_occurs, read_windows, window_intervals_mjd
-from .common import (add_lsr_definition, add_output, add_period, add_site, emit, figure_bytes, number,
-                     period_span)
+from .common import (add_lsr_definition, add_output, add_period, add_site, emit, figure_bytes,
+                     load_windows, number, period_span)
 
 NAME = "park"
 HELP = "which declination to park a dish at, ranked for your goals"
@@ -54,14 +53,8 @@ def run(args, console: Console) -> int:
     done = np.zeros(want.size)
     if args.log:
         done = coverage_minutes(read_log(args.log), bw)
-    intervals, windows_text = None, []
-    if args.windows:
-        avail = read_windows(args.windows)
-        if never_occurs(avail, start_mjd, end_mjd, site.tz):
-            raise UserError(f"--windows: no window falls in the period {args.start or ''} "
-                            f"(+{args.days} days)")
-        intervals = window_intervals_mjd(avail, start_mjd, end_mjd, site.tz)
-        windows_text = avail.describe()
+    avail, intervals = load_windows(args.windows, site, start_mjd, end_mjd)
+    windows_text = avail.describe() if avail else []
     pointings = candidate_pointings(site, args.step)
     if not pointings:
         raise UserError(f"{site.source}: no declination is reachable with this dish's elevation "
