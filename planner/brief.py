@@ -29,6 +29,8 @@ from .spectral import radio_velocity_kms
 CHART_CAPTIONS = {
     "month": "The month at a glance: when each passage happens and which ones to record.",
     "depth": "Integration depth per longitude bin, before and after this plan.",
+    "survey": "The schedule: which position the dish points at, when, and its elevation.",
+    "sky": "The visiting order on the sky.",
 }
 
 # Blocks of a survey more than this far apart start a new session (a new night or school day).

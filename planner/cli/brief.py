@@ -21,7 +21,8 @@ HELP = "a printable operator brief (HTML or Markdown) from a plan file"
 MARKDOWN_SUFFIXES = (".md", ".markdown")
 HTML_SUFFIXES = (".html", ".htm")
 # Chart functions of planner.plots drawn for each plan kind, with their names in the brief.
-CHARTS = {"drift": (("month", "month_chart"), ("depth", "depth_chart"))}
+CHARTS = {"drift": (("month", "month_chart"), ("depth", "depth_chart")),
+          "survey": (("survey", "survey_chart"), ("sky", "survey_sky"))}
 CHART_DPI = 110
 
 
