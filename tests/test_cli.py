@@ -103,6 +103,16 @@ BAD = [
     (["tune", "--rotation", "iau1958"], "rotation model 'iau1958' is unknown"),
     (["tune", "--dec", "75", "--days", "2"], "nothing to tune for"),
     (["lsr", "--lsr-def", "fast"], "invalid choice: 'fast'"),
+    (["park", "--step", "0"], "--step: 0.0 is outside (0, 30]"),
+    (["park", "--step", "-2"], "--step: -2.0 is outside (0, 30]"),
+    (["park", "--want", "90-30-10"], "--want: '90-30-10' is not a longitude range"),
+    (["park", "--windows", "Mon-Fri 19:00-25:00"], "--windows"),
+    (["park", "--log", "no-such-log.csv"], "no-such-log.csv"),
+    (["month", "--windows", "Funday 19:00-20:00"], "Funday"),
+    (["calendar", "no-such-plan.json"], "no-such-plan.json: plan file not found"),
+    (["brief", "no-such-plan.json"], "no-such-plan.json: plan file not found"),
+    (["survey", "--grid", "l=20..240/5,b=-4..4/4", "--days", "1"], "altaz"),
+    (["survey", "--site", "saltbush-ridge", "--grid", "l=20..240/0", "--days", "1"], "--grid"),
 ]
 
 
