@@ -53,7 +53,7 @@ def test_standard_solar_motion_matches_astropy_lsrk():
     # through the full FK4 machinery. We precess with IAU 1976 and skip the FK4
     # E-terms / equinox offset (< 1 arcsec); 1 arcsec on 20 km/s is 1e-4 km/s.
     assert np.allclose(SOLAR_MOTIONS["standard"], _kms(V_OFFSET_LSRK), rtol=0, atol=1e-4)
-    # Published rounded form (REFERENCES.md): (0.290, -17.317, 10.001) km/s, 3 decimals.
+    # Rounded form hard-coded in astropy (coordinates/builtin_frames/lsr.py): (0.290, -17.317, 10.001) km/s.
     assert np.allclose(SOLAR_MOTIONS["standard"], [0.290, -17.317, 10.001], rtol=0, atol=6e-4)
 
 

@@ -202,7 +202,7 @@ def test_coverage_atlas_builds_and_draws_the_plane(tmp_path, rng):
     l_deg, dec_deg = plane.get_xdata(), plane.get_ydata()
     ref = SkyCoord(l=l_deg * u.deg, b=np.zeros_like(l_deg) * u.deg, frame="galactic").icrs
     assert np.max(np.abs(dec_deg - ref.dec.deg)) < 1e-4
-    # The plane reaches Dec +/-62.87 deg = +/-(90 - 27.128), the NGP declination (REFERENCES.md).
+    # The plane reaches Dec +/-62.87 deg = +/-(90 - 27.128), the NGP declination (astropy's J2000 values after Blaauw et al. 1960).
     assert abs(np.max(dec_deg) - 62.8717) < 0.01
 
 

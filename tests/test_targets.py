@@ -34,7 +34,7 @@ def test_grid_inclusive_end_and_uneven_step():
 
 
 def test_grid_coordinates_match_astropy():
-    # (l, b) = (0, 0) is RA 266.4051, Dec -28.936175 (REFERENCES.md, astropy's frame).
+    # (l, b) = (0, 0) is RA 266.4051, Dec -28.936175 (astropy's J2000 galactic frame, after Blaauw et al. 1960).
     t = parse_grid("l=0,b=0", 5)[0]
     assert t.ra_deg == pytest.approx(266.4051, abs=1e-3)
     assert t.dec_deg == pytest.approx(-28.936175, abs=1e-3)
