@@ -36,7 +36,7 @@ def test_sgr_a_star_near_centre():
 
 
 def test_plane_declination_extremes():
-    # The plane reaches +/-(90 - 27.1282512) = +/-62.8717 deg (REFERENCES: NGP declination).
+    # The plane reaches +/-(90 - 27.1282512) = +/-62.8717 deg (NGP declination, astropy's J2000 values after Blaauw et al. 1960).
     decs = plane_declination_deg(np.linspace(0, 360, 36001))
     assert abs(decs.max() - 62.8717) < 1e-3 and abs(decs.min() + 62.8717) < 1e-3
     assert abs(PLANE_DEC_LIMIT_DEG - 62.8717488) < 1e-6
