@@ -104,7 +104,7 @@ def drift_plan_document(plan: MonthPlan, settings: dict, model: RotationModel,
             events.append((occ.start_mjd[i], k, int(i)))
     events.sort()
     recordings_by_day: dict[int, list] = {}
-    for start, k, i in events:  # one per recording (tens to hundreds)
+    for _start, k, i in events:  # one per recording (tens to hundreds)
         parking = plan.parkings[k]
         occ = sweep.rows[parking.row].occurrences
         minutes = occ.bin_seconds[i] / 60.0
@@ -129,7 +129,7 @@ def drift_plan_document(plan: MonthPlan, settings: dict, model: RotationModel,
             recordings_by_day.setdefault(d, []).append((rec, bins, occ.lsr_min_kms[i], occ.lsr_max_kms[i]))
 
     # Parking per day, moves, and the passages of the parked declination that are skipped.
-    for k, parking in enumerate(plan.parkings):
+    for parking in plan.parkings:
         row = sweep.rows[parking.row]
         park = _dish(row.pointing)
         first = day_of(parking.move_mjd) if parking.move_mjd is not None else 0

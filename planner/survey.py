@@ -717,7 +717,7 @@ def _reasons(d: _Dispatcher, vis: Visibility, targets, wanted, done_before, sche
             continue
         need = d.need[i] + 1
 
-        def fits(mask) -> bool:
+        def fits(mask, need=need) -> bool:
             return bool((_run_lengths(mask) >= need).any())
 
         elev = vis.elevation_ok[i]

@@ -2,9 +2,7 @@
 import json
 import math
 import tomllib
-from datetime import date
 
-import numpy as np
 import pytest
 from hypothesis import HealthCheck, given, settings, strategies as st
 
