@@ -210,3 +210,35 @@ def _dish(p) -> dict:
 def _tidy(value):
     value = float(value)
     return int(value) if value.is_integer() else value
+
+
+def plan_log_rows(doc: dict, quality: str = "good", note: str = "from plan") -> list[dict]:
+    """Observation-log rows (``obslog`` columns) for what a plan records.
+
+    Drift plans: one row per recording and longitude bin (``l_from_deg`` =
+    ``l_to_deg`` = the bin start), crediting that bin's minutes, so a log read back
+    gives exactly the depth the plan promises. Survey plans: one row per target block.
+    Mark rows ``bad`` (or delete them) for recordings that did not happen.
+    """
+    rows = []
+    if doc["kind"] == "drift":
+        for day in doc["days"]:
+            for rec in day["recordings"]:
+                dec = (rec.get("dish") or day.get("park") or {}).get("dec_deg")
+                for b, minutes in zip(rec["l_bins"], rec["bin_minutes"]):
+                    if minutes <= 0:
+                        continue
+                    rows.append({"start_utc": rec["start_utc"], "end_utc": rec["end_utc"],
+                                 "dec_deg": dec, "l_from_deg": b, "l_to_deg": b,
+                                 "minutes": min(float(minutes), 1440.0), "quality": quality,
+                                 "note": note})
+    else:
+        for block in doc["blocks"]:
+            if block["kind"] != "target":
+                continue
+            l_deg = float(block["l_deg"]) % 360.0
+            rows.append({"start_utc": block["start_utc"], "end_utc": block["end_utc"],
+                         "dec_deg": block["dec_deg"], "l_from_deg": l_deg, "l_to_deg": l_deg,
+                         "minutes": float(block["minutes"]), "quality": quality,
+                         "note": f"{note}: {block['name']}"})
+    return rows

@@ -221,7 +221,8 @@ def _round_floats(obj, digits=4):
 
 def tune_document(site: Site, setup, model, lsr_definition: str, start_mjd: float, end_mjd: float,
                   pointing: Pointing | None = None, band_deg: float | None = None, l_bins=None,
-                  depth=None, drift_s: float | None = None, target=None, pointed=None) -> dict:
+                  depth=None, drift_s: float | None = None, target=None, pointed=None,
+                  plan_source=None) -> dict:
     """Receiver set-up advice as a JSON-ready document (frequencies MHz, velocities km/s)."""
     from dataclasses import asdict
     advice = asdict(setup.advice)
@@ -248,6 +249,11 @@ def tune_document(site: Site, setup, model, lsr_definition: str, start_mjd: floa
                       "rms_per_day_k": d.rms_per_day_k, "days_to_target": d.days_to_target}
                      for d in depth],
         }
+    if plan_source is not None:
+        path, count, bins, bw = plan_source
+        doc["plan"] = {"file": path, "recordings": count}
+        doc["l_bins"] = [b * bw for b in bins]
+        doc["l_ranges"] = compact_ranges([b * bw for b in bins], bw)
     if target is not None:
         ra, dec, l, b = target
         doc["target"] = {"ra_deg": ra, "dec_deg": dec, "l_deg": l, "b_deg": b}
@@ -265,6 +271,9 @@ def tune_renderable(doc: dict):
         p = doc["pointing"]
         head.append(f"\nParked beam: elevation {p['alt_deg']:.2f}°, azimuth {p['az_deg']:.1f}°, "
                     f"Dec {p['dec_deg']:+.2f}°; longitudes {doc['l_ranges']}")
+    elif "plan" in doc:
+        head.append(f"\nPlan {doc['plan']['file']}: {doc['plan']['recordings']} recordings, "
+                    f"longitudes {doc['l_ranges']}")
     else:
         g = doc["target"]
         head.append(f"\nPosition: l {g['l_deg']:.2f}°, b {g['b_deg']:+.2f}° "

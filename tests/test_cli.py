@@ -165,3 +165,10 @@ def test_demo_writes_files(tmp_path, capsys):
     assert all((tmp_path / "demo" / f).stat().st_size > 100 for f in files)
     code, _, err = run(capsys, "demo", "--output-dir", str(tmp_path / "demo"))
     assert code == 2 and "already exists" in err
+
+
+@pytest.mark.parametrize("script", ["examples/api_example.py", "examples/plan_month.py"])
+def test_example_scripts_run(script):
+    proc = subprocess.run([sys.executable, script], capture_output=True, text=True, timeout=300)
+    assert proc.returncode == 0, proc.stderr
+    assert proc.stdout.strip()

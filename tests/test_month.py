@@ -137,3 +137,42 @@ def test_plan_file_checks(tmp_path):
         read_plan(broken)
     with pytest.raises(UserError, match="plan is missing"):
         check_plan({"schema": "hiplan.plan/1"}, "x.json")
+
+
+def test_plan_log_round_trip_gives_the_promised_depth(tmp_path, capsys):
+    """A plan turned into log rows and read back adds exactly the depth the plan promises."""
+    plan_path, log_path = tmp_path / "plan.json", tmp_path / "done.csv"
+    assert main(["month", "--start", "2027-03-01", "--days", "10", "--want", "30-90,120-200",
+                 "--output", str(plan_path), "--format", "json"]) == 0
+    assert main(["plan-log", str(plan_path), "-o", str(log_path)]) == 0
+    capsys.readouterr()
+    doc = read_plan(plan_path)
+    added = coverage_minutes(read_log(log_path))
+    for key, after in doc["summary"]["depth_after_min"].items():
+        before = doc["summary"]["depth_before_min"][key]
+        # 2e-3 min: the plan file rounds minutes to 4 decimals, a bin sums ~10 recordings.
+        assert added[int(key)] == pytest.approx(after - before, abs=2e-3)
+
+
+def test_tune_for_a_whole_plan_and_one_passage(tmp_path, capsys):
+    plan_path = tmp_path / "plan.json"
+    assert main(["month", "--start", "2027-03-01", "--days", "5", "--output", str(plan_path),
+                 "--format", "json"]) == 0
+    capsys.readouterr()
+    assert main(["tune", "--plan", str(plan_path), "--format", "json"]) == 0
+    whole = json.loads(capsys.readouterr().out)
+    doc = read_plan(plan_path)
+    recs = [r for d in doc["days"] for r in d["recordings"]]
+    assert whole["lsr_corr_min_kms"] == pytest.approx(min(r["lsr_corr_min_kms"] for r in recs), abs=1e-3)
+    assert set(whole["l_bins"]) == {b for r in recs for b in r["l_bins"]}
+    # The whole-plan line span contains each day's own span.
+    for d in doc["days"]:
+        if d["tuning"]:
+            assert whole["tuning"]["line_low_mhz"] <= d["tuning"]["line_low_mhz"] + 1e-6
+            assert whole["tuning"]["line_high_mhz"] >= d["tuning"]["line_high_mhz"] - 1e-6
+    assert main(["tune", "--dec", "20", "--start", "2027-03-01", "--days", "2", "--passage", "2",
+                 "--format", "json"]) == 0
+    one = json.loads(capsys.readouterr().out)
+    assert one["l_ranges"] == "188–191"
+    assert main(["tune", "--dec", "20", "--start", "2027-03-01", "--days", "2", "--passage", "9"]) == 2
+    assert "only 4 passages" in capsys.readouterr().err

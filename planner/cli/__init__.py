@@ -14,10 +14,10 @@ from rich.console import Console
 
 from .. import __version__
 from ..errors import UserError
-from . import brief, calendar, crossings, demo, lsr, month, park, sites, survey, tune
+from . import brief, calendar, crossings, demo, lsr, month, park, planlog, sites, survey, tune
 from .common import Parser
 
-COMMAND_MODULES = (demo, park, month, survey, calendar, brief, crossings, lsr, tune, sites)
+COMMAND_MODULES = (demo, park, month, survey, calendar, brief, planlog, crossings, lsr, tune, sites)
 COMMANDS = {m.NAME: m.run for m in COMMAND_MODULES}
 
 

@@ -14,6 +14,7 @@ from ..report import to_json, tune_document, tune_renderable
 from ..sensitivity import days_to_reach, drift_time_s, radiometer_rms_k
 from ..site import load_site
 from ..spectral import tuning_advice
+from ..timebase import parse_instant
 from ..tuning import LineSetup, drift_depth, line_setup
 from .common import (add_lsr_definition, add_output, add_period, add_pointing, add_site, add_target,
                      emit, number, period_span, resolve_pointing, sky_target)
@@ -41,6 +42,9 @@ def add_arguments(p) -> None:
                    help="noise level wanted per channel (K): report the days needed")
     p.add_argument("--switched", action="store_true",
                    help="frequency/position switching: noise factor 2 instead of 1")
+    p.add_argument("--passage", type=number(int, "--passage", 1, 100000),
+                   help="tune for the N-th passage of the period only (parked beam)")
+    p.add_argument("--plan", help="tune once for a whole plan file (hiplan month or survey)")
     add_lsr_definition(p)
     add_output(p, formats=("table", "json"))
 
@@ -52,6 +56,8 @@ def run(args, console: Console) -> int:
     overrides = {k: v for k, v in (("dispersion_kms", args.dispersion),
                                    ("disc_radius_kpc", args.disc_radius)) if v is not None}
     model = model_from_name(args.rotation, **overrides)
+    if args.plan:
+        return _run_plan(args, console, model)
     start_mjd, end_mjd = period_span(args, site)
     band = site.rules.band_deg if args.band is None else args.band
     target = sky_target(args)
@@ -61,6 +67,15 @@ def run(args, console: Console) -> int:
         search = search_passages_mjd(site, pointing, start_mjd, end_mjd, band,
                                      solar_motion=args.lsr_def)
         usable = [p for p in search.passages if p.sun_ok]
+        if args.passage is not None:
+            if args.passage > len(search.passages):
+                raise UserError(f"--passage: there are only {len(search.passages)} passages in "
+                                "this period")
+            chosen = search.passages[args.passage - 1]
+            if not chosen.sun_ok:
+                raise UserError(f"--passage: passage {args.passage} is too close to the Sun "
+                                f"({chosen.sun_sep_min_deg:.0f}°)")
+            usable = [chosen]
         if not usable:
             why = ("the beam never comes within the band of the plane" if not search.passages
                    else "every passage is too close to the Sun")
@@ -100,3 +115,43 @@ def run(args, console: Console) -> int:
     return 0
 
 
+
+
+def _run_plan(args, console: Console, model) -> int:
+    """One receiver setting that covers every recording (or target) of a plan file."""
+    from ..planfile import read_plan
+    doc = read_plan(args.plan)
+    site = load_site(args.site) if args.site else None
+    bw = doc["settings"].get("bin_width_deg", 1.0)
+    if doc["kind"] == "drift":
+        items = [r for d in doc["days"] for r in d["recordings"]]
+        bins = sorted({int(round(b / bw)) for r in items for b in r["l_bins"]})
+    else:
+        items = [b for b in doc["blocks"] if b["kind"] == "target"]
+        bins = sorted({int(np.floor(b["l_deg"] / bw)) % int(round(360 / bw)) for b in items})
+    if not items:
+        raise UserError(f"{args.plan}: the plan has nothing to record, so nothing to tune for")
+    receiver = (site or _site_from_plan(doc, args.plan)).receiver
+    setup = line_setup(bins, bw, doc["site"].get("band_deg", 3.0),
+                       min(r["lsr_corr_min_kms"] for r in items),
+                       max(r["lsr_corr_max_kms"] for r in items), receiver, model)
+    start_mjd, end_mjd = (parse_instant(doc["period"][k], f"{args.plan} period") for k in
+                          ("start_utc", "end_utc"))
+    out = tune_document(site or _site_from_plan(doc, args.plan), setup, model, args.lsr_def,
+                        start_mjd, end_mjd, plan_source=(str(args.plan), len(items), bins, bw))
+    if args.format == "json":
+        emit(args, console, to_json(out))
+    else:
+        emit(args, console, None, tune_renderable(out))
+    return 0
+
+
+def _site_from_plan(doc: dict, source: str):
+    """The plan's site, loaded by name from the known site files (for its receiver)."""
+    from ..site import available_sites, read_site_file
+    for path in available_sites().values():
+        candidate = read_site_file(path)
+        if candidate.name == doc["site"]["name"]:
+            return candidate
+    raise UserError(f"{source}: site '{doc['site']['name']}' is not among the known site files; "
+                    "give it with --site")
