@@ -12,7 +12,8 @@ from __future__ import annotations
 import erfa
 import numpy as np
 
-from .earth import AU_KM, EarthState, site_gcrs_position_m
+from .earth import AU_KM, EarthState, earth_state, site_gcrs_position_m, spherical_deg
+from .galactic import ICRS_TO_GALACTIC
 from .site import Site
 from .skytrack import icrs_to_altaz_deg, site_xyz_m
 from .timebase import MJD_ZERO_JD, SECONDS_PER_DAY, tt_minus_utc_s
@@ -53,7 +54,5 @@ def sun_altitude_deg(site: Site, state: EarthState) -> np.ndarray:
 
 def sun_galactic_deg(mjd_utc) -> tuple[np.ndarray, np.ndarray]:
     """The Sun's galactic (l, b) in degrees at ``mjd_utc`` (geocentric, for maps)."""
-    from .earth import earth_state, spherical_deg
-    from .galactic import ICRS_TO_GALACTIC
     state = earth_state(np.atleast_1d(np.asarray(mjd_utc, dtype=float)))
     return spherical_deg(sun_direction(state) @ ICRS_TO_GALACTIC.T)

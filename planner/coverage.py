@@ -32,11 +32,11 @@ import numpy as np
 
 from .avoidance import separation_deg
 from .doppler import velocity_corrections
-from .earth import EarthNodes, earth_nodes, earth_state
+from .earth import earth_nodes, earth_state
 from .galactic import ICRS_TO_GALACTIC
 from .pointing import Pointing
 from .site import Site
-from .skytrack import fixed_pointing_icrs, icrs_to_altaz_deg
+from .skytrack import FixedBeams, icrs_to_altaz_deg
 from .timebase import SECONDS_PER_DAY, dut1_s
 from .windows import inside
 
@@ -108,37 +108,19 @@ class _Templates:
     sample_vec: np.ndarray  # (S, 3) ICRS direction at the sub-interval midpoint
 
 
-class _Beam:
-    """|b| for (time, row) pairs of the swept pointings, sharing Earth nodes."""
-
-    def __init__(self, site: Site, pointings: list[Pointing], nodes: EarthNodes):
-        self.site = site
-        self.ha_deg = np.array([p.ha_deg for p in pointings])
-        self.dec_deg = np.array([p.dec_deg for p in pointings])
-        self.nodes = nodes
-
-    def vectors(self, mjd: np.ndarray, row: np.ndarray) -> np.ndarray:
-        state = earth_state(mjd, self.nodes)
-        return fixed_pointing_icrs(self.site, self.ha_deg[row], self.dec_deg[row], state)
-
-    def abs_b(self, mjd: np.ndarray, row: np.ndarray) -> np.ndarray:
-        z = self.vectors(mjd, row) @ ICRS_TO_GALACTIC[2]
-        return np.abs(np.degrees(np.arcsin(np.clip(z, -1.0, 1.0))))
-
-
-def _refine(beam: _Beam, lo, hi, row, band, rising: bool, tol_days: float) -> np.ndarray:
+def _refine(beam: FixedBeams, lo, hi, row, band, rising: bool, tol_days: float) -> np.ndarray:
     """Bisection for |b| = band between lo (outside if rising) and hi."""
     lo, hi = lo.copy(), hi.copy()
     while lo.size and np.max(hi - lo) > tol_days:
         mid = 0.5 * (lo + hi)
-        in_band = beam.abs_b(mid, row) <= band
+        in_band = np.abs(beam.b_deg(mid, row)) <= band
         move_hi = in_band if rising else ~in_band
         hi = np.where(move_hi, mid, hi)
         lo = np.where(move_hi, lo, mid)
     return 0.5 * (lo + hi)
 
 
-def _templates(beam: _Beam, epoch_mjd: float, band: float, step_s: float,
+def _templates(beam: FixedBeams, epoch_mjd: float, band: float, step_s: float,
                detail_step_s: float, bin_width: float) -> _Templates:
     """Template passages starting within one sidereal day of ``epoch_mjd``."""
     n_rows = beam.dec_deg.size
@@ -147,7 +129,7 @@ def _templates(beam: _Beam, epoch_mjd: float, band: float, step_s: float,
     m = grid.size
     t_all = np.tile(grid, n_rows)
     r_all = np.repeat(np.arange(n_rows), m)
-    in_band = (beam.abs_b(t_all, r_all) <= band).reshape(n_rows, m)
+    in_band = (np.abs(beam.b_deg(t_all, r_all)) <= band).reshape(n_rows, m)
 
     # Run starts/ends per row; a run touching the grid's first sample is a repeat of one
     # that starts a sidereal day later, and a run must start within the first sidereal day.
@@ -171,7 +153,7 @@ def _templates(beam: _Beam, epoch_mjd: float, band: float, step_s: float,
     k = np.arange(counts.sum()) - np.repeat(np.cumsum(counts) - counts, counts)
     width = (end - start) / counts
     offset = (k + 0.5) * width[passage]
-    vec = beam.vectors(start[passage] + offset, row[passage])
+    vec = beam.locate(start[passage] + offset, row[passage])[1]
     l_deg = np.degrees(np.arctan2(vec @ ICRS_TO_GALACTIC[1], vec @ ICRS_TO_GALACTIC[0])) % 360.0
     n_bins = int(round(360.0 / bin_width))
     return _Templates(row=row, start_mjd=start, end_mjd=end, sample_passage=passage,
@@ -237,7 +219,7 @@ def sweep(site: Site, pointings: list[Pointing], start_mjd: float, end_mjd: floa
     bw = site.rules.bin_width_deg
     n_bins = int(round(360.0 / bw))
     n_rows = len(pointings)
-    beam = _Beam(site, pointings, earth_nodes(start_mjd - 1.5, end_mjd + 1.5))
+    beam = FixedBeams(site, pointings, earth_nodes(start_mjd - 1.5, end_mjd + 1.5))
 
     n_seg = max(1, int(np.ceil((end_mjd - start_mjd) / EPOCH_SPACING_DAYS)))
     edges = np.linspace(start_mjd, end_mjd, n_seg + 1)
@@ -265,7 +247,7 @@ def sweep(site: Site, pointings: list[Pointing], start_mjd: float, end_mjd: floa
                      start_mjd, end_mjd, band, bw, night_only, window_intervals is not None)
 
 
-def _judge(site: Site, beam: _Beam, tpl: _Templates, which: np.ndarray, start: np.ndarray,
+def _judge(site: Site, beam: FixedBeams, tpl: _Templates, which: np.ndarray, start: np.ndarray,
            night_only: bool, solar_motion: str) -> dict:
     """Sun separation, Sun altitude, LSR range and usability of each occurrence."""
     duration = (tpl.end_mjd - tpl.start_mjd)[which]

@@ -37,7 +37,7 @@ from datetime import datetime, timedelta, timezone
 import numpy as np
 
 from .errors import UserError
-from .timebase import SECONDS_PER_DAY, datetime_to_mjd_utc
+from .timebase import SECONDS_PER_DAY, UNIX_EPOCH_MJD, datetime_to_mjd_utc
 
 LOG_COLUMNS = ("start_utc", "end_utc", "dec_deg", "l_from_deg", "l_to_deg", "minutes",
                "quality", "note")
@@ -53,7 +53,6 @@ MAX_MINUTES = 1440.0  # one day
 
 FORMAT_COMMENT = "# hiplan observation log, format 1 (see docs/observation-log.md)"
 
-_UNIX_EPOCH_MJD = 40587.0  # MJD of 1970-01-01T00:00:00 UTC
 _UNIX_EPOCH = datetime(1970, 1, 1, tzinfo=timezone.utc)
 # Typed values such as 0.3 with a bin width of 0.1 give 2.9999999999999996 on
 # division (a third of all 0.1-step values do); the nudge puts them in the bin
@@ -418,7 +417,7 @@ def _iso_from_mjd(mjd_utc: float) -> str:
     Float MJD near 6e4 days resolves ~0.6 microseconds, so rounding to the
     millisecond recovers exactly the time that was read.
     """
-    ms = round((float(mjd_utc) - _UNIX_EPOCH_MJD) * SECONDS_PER_DAY * 1000.0)
+    ms = round((float(mjd_utc) - UNIX_EPOCH_MJD) * SECONDS_PER_DAY * 1000.0)
     moment = _UNIX_EPOCH + timedelta(milliseconds=ms)
     if ms % 1000 == 0:
         return moment.strftime("%Y-%m-%dT%H:%M:%SZ")

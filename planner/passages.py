@@ -26,13 +26,13 @@ from dataclasses import dataclass
 import numpy as np
 from astropy.time import Time
 
-from .doppler import velocity_corrections
 from .avoidance import moon_direction, separation_deg, sun_altitude_deg, sun_direction
-from .earth import EarthNodes, earth_nodes, earth_state, spherical_deg
+from .doppler import velocity_corrections
+from .earth import earth_nodes, spherical_deg
 from .galactic import ICRS_TO_GALACTIC
 from .pointing import Pointing
 from .site import Site
-from .skytrack import fixed_pointing_icrs
+from .skytrack import FixedBeams
 from .timebase import SECONDS_PER_DAY, to_mjd_utc
 
 SIDEREAL_RATE_DEG_PER_S = 360.0 / 86164.0905
@@ -90,23 +90,6 @@ class PassageSearch:
     band_deg: float
     start_mjd: float
     end_mjd: float
-
-
-class _TrackB:
-    """|b| of a fixed pointing as a function of MJD, with shared Earth nodes."""
-
-    def __init__(self, site: Site, pointing: Pointing, nodes: EarthNodes):
-        self.site, self.pointing, self.nodes = site, pointing, nodes
-
-    def vectors(self, mjd: np.ndarray):
-        state = earth_state(mjd, self.nodes)
-        icrs = fixed_pointing_icrs(self.site, self.pointing.ha_deg, self.pointing.dec_deg, state)
-        return state, icrs
-
-    def b_deg(self, mjd: np.ndarray) -> np.ndarray:
-        _, icrs = self.vectors(np.asarray(mjd, dtype=float))
-        gal_z = icrs @ ICRS_TO_GALACTIC[2]
-        return np.degrees(np.arcsin(np.clip(gal_z, -1.0, 1.0)))
 
 
 def _bisect(func, lo: np.ndarray, hi: np.ndarray, tol_days: float) -> np.ndarray:
@@ -169,7 +152,7 @@ def search_passages_mjd(site: Site, pointing: Pointing, start_mjd: float, end_mj
     grid = np.linspace(start_mjd, end_mjd, n)
     step_days = grid[1] - grid[0]
     nodes = earth_nodes(start_mjd - 0.01, end_mjd + 0.01)
-    track = _TrackB(site, pointing, nodes)
+    track = FixedBeams(site, [pointing], nodes)
     abs_b = np.abs(track.b_deg(grid))
     excess = lambda t: np.abs(track.b_deg(t)) - band  # noqa: E731
     tol = 0.01 / SECONDS_PER_DAY
@@ -227,7 +210,7 @@ def _describe(site, pointing, track, starts, ends, peaks, peak_abs_b, clipped, d
     frac = k / (counts[owner] - 1)  # 0 at start, 1 at end, evenly spaced
     mjd = starts[owner] + frac * (ends - starts)[owner]
 
-    state, icrs = track.vectors(mjd)
+    state, icrs = track.locate(mjd)
     l_deg, b_deg = spherical_deg(icrs @ ICRS_TO_GALACTIC.T)
     sun_sep = separation_deg(icrs, sun_direction(state))
     moon_sep = separation_deg(icrs, moon_direction(site, state))
@@ -235,7 +218,7 @@ def _describe(site, pointing, track, starts, ends, peaks, peak_abs_b, clipped, d
     ra_deg, dec_deg = spherical_deg(icrs)
     lsr = velocity_corrections(site.latitude_deg, site.longitude_deg, site.height_m, ra_deg,
                                dec_deg, mjd, solar_motion, state).lsr_corr_kms
-    l_peak, _ = spherical_deg(track.vectors(peaks)[1] @ ICRS_TO_GALACTIC.T)
+    l_peak, _ = spherical_deg(track.locate(peaks)[1] @ ICRS_TO_GALACTIC.T)
 
     rules = site.rules
     bw = rules.bin_width_deg

@@ -84,6 +84,30 @@ def icrs_to_altaz_deg(site: Site, vec_icrs: np.ndarray, state: EarthState) -> tu
     return np.degrees(el), np.degrees(az)
 
 
+class FixedBeams:
+    """ICRS directions and galactic latitude of parked pointings at any (time, row) pairs.
+
+    The Earth nodes are shared, so root finders can evaluate many times cheaply;
+    ``row`` indexes ``pointings`` (default 0 for a single pointing).
+    """
+
+    def __init__(self, site: Site, pointings: list[Pointing], nodes: EarthNodes):
+        self.site = site
+        self.ha_deg = np.array([p.ha_deg for p in pointings])
+        self.dec_deg = np.array([p.dec_deg for p in pointings])
+        self.nodes = nodes
+
+    def locate(self, mjd_utc, row=0) -> tuple[EarthState, np.ndarray]:
+        """(Earth state, ICRS unit vectors (N, 3)) at the given times and rows."""
+        state = earth_state(np.asarray(mjd_utc, dtype=float), self.nodes)
+        return state, fixed_pointing_icrs(self.site, self.ha_deg[row], self.dec_deg[row], state)
+
+    def b_deg(self, mjd_utc, row=0) -> np.ndarray:
+        """Galactic latitude (deg) of the beam centre."""
+        z = self.locate(mjd_utc, row)[1] @ ICRS_TO_GALACTIC[2]
+        return np.degrees(np.arcsin(np.clip(z, -1.0, 1.0)))
+
+
 def track_mjd(site: Site, pointing: Pointing, mjd_utc, nodes: EarthNodes | None = None) -> BeamTrack:
     """Beam track for float MJD (UTC) samples; the fast path used in hot loops."""
     state = earth_state(mjd_utc, nodes)

@@ -30,7 +30,7 @@ log = logging.getLogger(__name__)
 
 MJD_ZERO_JD = 2400000.5
 SECONDS_PER_DAY = 86400.0
-_UNIX_EPOCH_MJD = 40587.0
+UNIX_EPOCH_MJD = 40587.0  # MJD of 1970-01-01 00:00 UTC
 
 
 def configure_offline() -> None:
@@ -112,7 +112,7 @@ def from_mjd_utc(mjd_utc) -> Time:
 
 def mjd_to_datetime_utc(mjd_utc: float) -> datetime:
     """Aware UTC datetime, rounded to the nearest second."""
-    seconds = round((float(mjd_utc) - _UNIX_EPOCH_MJD) * SECONDS_PER_DAY)
+    seconds = round((float(mjd_utc) - UNIX_EPOCH_MJD) * SECONDS_PER_DAY)
     return datetime.fromtimestamp(seconds, tz=timezone.utc)
 
 
@@ -120,7 +120,7 @@ def datetime_to_mjd_utc(moment: datetime) -> float:
     """Float MJD (UTC) of an aware datetime."""
     if moment.tzinfo is None:
         raise ValueError("naive datetime: a time zone is required")
-    return moment.timestamp() / SECONDS_PER_DAY + _UNIX_EPOCH_MJD
+    return moment.timestamp() / SECONDS_PER_DAY + UNIX_EPOCH_MJD
 
 
 def iso_utc(mjd_utc: float) -> str:

@@ -55,7 +55,7 @@ import numpy as np
 from dateutil.rrule import rrulestr  # via matplotlib's dependency on python-dateutil
 
 from .errors import UserError
-from .timebase import SECONDS_PER_DAY
+from .timebase import SECONDS_PER_DAY, UNIX_EPOCH_MJD
 
 __all__ = [
     "ALWAYS",
@@ -70,7 +70,6 @@ __all__ = [
     "window_intervals_mjd",
 ]
 
-_UNIX_EPOCH_MJD = 40587.0  # 1970-01-01 00:00 UTC
 _MINUTES_PER_DAY = 1440
 _DAY_NAMES = ("mon", "tue", "wed", "thu", "fri", "sat", "sun")  # index = date.weekday()
 _DAY_LABELS = ("Mon", "Tue", "Wed", "Thu", "Fri", "Sat", "Sun")
@@ -459,7 +458,7 @@ def _as_zone(tz: tzinfo | str) -> tzinfo:
 def _local_wall(mjd_utc: float, tz: tzinfo) -> datetime:
     """Naive local wall time of an MJD (UTC), to the microsecond."""
     moment = datetime(1970, 1, 1, tzinfo=timezone.utc) + timedelta(
-        days=float(mjd_utc) - _UNIX_EPOCH_MJD)
+        days=float(mjd_utc) - UNIX_EPOCH_MJD)
     return moment.astimezone(tz).replace(tzinfo=None)
 
 
@@ -551,7 +550,7 @@ def window_intervals_mjd(avail: Availability, start_mjd: float, end_mjd: float,
             edges.extend(_rrule_edges_s(rule, anchor, stop, zone))
     edges_s = np.array(edges, dtype=np.int64).reshape(-1, 2)
     edges_s = edges_s[edges_s[:, 1] > edges_s[:, 0]]  # a window wholly inside a gap vanishes
-    merged_mjd = _merge(edges_s) / SECONDS_PER_DAY + _UNIX_EPOCH_MJD
+    merged_mjd = _merge(edges_s) / SECONDS_PER_DAY + UNIX_EPOCH_MJD
     return clip_to_windows(start_mjd, end_mjd, merged_mjd)
 
 

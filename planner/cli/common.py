@@ -6,6 +6,7 @@ and ``run(args, console) -> int``. User mistakes raise ``UserError``.
 from __future__ import annotations
 
 import argparse
+import io
 import sys
 from datetime import date, datetime
 from pathlib import Path
@@ -159,7 +160,7 @@ def emit(args, console: Console, text: str | None, renderable=None) -> None:
 
 
 def plain_text(renderable) -> str:
-    cap = Console(width=160, record=True, file=open("/dev/null", "w"), color_system=None)
+    cap = Console(width=160, record=True, file=io.StringIO(), color_system=None)
     cap.print(renderable)
     return cap.export_text()
 
@@ -170,7 +171,7 @@ def plain_text(renderable) -> str:
 
 def quiet_console() -> Console:
     """A console that discards output (for commands run inside the demo)."""
-    return Console(file=open("/dev/null", "w"), width=120)
+    return Console(file=io.StringIO(), width=120)
 
 
 def figure_bytes(fig, fmt: str) -> bytes:

@@ -42,8 +42,6 @@ def add_arguments(p) -> None:
 
 def run(args, console: Console) -> int:
     site = load_site(args.site)
-    if site.dish.mount not in ("transit", "fixed", "altaz"):
-        raise UserError(f"{site.source}: unknown mount")
     if args.output is not None:
         check_writable(args.output, args.force)
     plot_paths = _plot_paths(args.plot, args.force) if args.plot else None

@@ -121,7 +121,7 @@ def _run_plan(args, console: Console, model) -> int:
     """One receiver setting that covers every recording (or target) of a plan file."""
     from ..planfile import read_plan
     doc = read_plan(args.plan)
-    site = load_site(args.site) if args.site else None
+    site = load_site(args.site) if args.site else _site_from_plan(doc, args.plan)
     bw = doc["settings"].get("bin_width_deg", 1.0)
     if doc["kind"] == "drift":
         items = [r for d in doc["days"] for r in d["recordings"]]
@@ -131,13 +131,13 @@ def _run_plan(args, console: Console, model) -> int:
         bins = sorted({int(np.floor(b["l_deg"] / bw)) % int(round(360 / bw)) for b in items})
     if not items:
         raise UserError(f"{args.plan}: the plan has nothing to record, so nothing to tune for")
-    receiver = (site or _site_from_plan(doc, args.plan)).receiver
+    receiver = site.receiver
     setup = line_setup(bins, bw, doc["site"].get("band_deg", 3.0),
                        min(r["lsr_corr_min_kms"] for r in items),
                        max(r["lsr_corr_max_kms"] for r in items), receiver, model)
     start_mjd, end_mjd = (parse_instant(doc["period"][k], f"{args.plan} period") for k in
                           ("start_utc", "end_utc"))
-    out = tune_document(site or _site_from_plan(doc, args.plan), setup, model, args.lsr_def,
+    out = tune_document(site, setup, model, args.lsr_def,
                         start_mjd, end_mjd, plan_source=(str(args.plan), len(items), bins, bw))
     if args.format == "json":
         emit(args, console, to_json(out))
