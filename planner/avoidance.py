@@ -21,6 +21,19 @@ from .timebase import MJD_ZERO_JD, SECONDS_PER_DAY, tt_minus_utc_s
 # Sun's altitude at sunrise/sunset: refraction 34' + semi-diameter 16' (almanac convention).
 SUNSET_ALTITUDE_DEG = -0.833
 
+# What counts as night: the Sun's geometric centre below these altitudes (deg).
+# "horizon" is hiplan's documented default; the twilight limits are the standard
+# definitions (Explanatory Supplement to the Astronomical Almanac, 1992, sec. 9.33:
+# civil -6, nautical -12, astronomical -18 deg).
+NIGHT_SUN_ALTITUDE_DEG = {
+    "horizon": 0.0,
+    "sunset": SUNSET_ALTITUDE_DEG,
+    "civil": -6.0,
+    "nautical": -12.0,
+    "astronomical": -18.0,
+}
+DEFAULT_NIGHT = "horizon"
+
 
 def _unit(vec: np.ndarray) -> np.ndarray:
     return vec / np.linalg.norm(vec, axis=-1, keepdims=True)

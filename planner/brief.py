@@ -351,6 +351,12 @@ def _site_section(doc: dict) -> Section:
         ("Sun rule:", f"no recording with the beam closer than {_deg(sun_rule, 0)} to the Sun; "
                       "such passages are left out of this plan."),
     ]
+    hazard_rule = settings.get("sun_hazard_deg", site.get("sun_hazard_deg"))
+    if hazard_rule is not None:
+        items.append(("Feed safety:", f"the plan never parks or moves the dish where the Sun comes "
+                                      f"within {_deg(hazard_rule, 0)} of where it points"
+                      + (", unless a SUN HAZARD task below says otherwise." if doc.get("warnings")
+                         else ".")))
     return Section("site", "Site and dish", (Bullets(tuple(items)),))
 
 
@@ -366,16 +372,17 @@ def _drift_settings(doc: dict) -> Section:
         ("Wanted longitudes:", f"{_want_text(settings.get('want'))}, in "
                                f"{_num(settings.get('bin_width_deg'), 'g')}° bins; target {depth}."),
         ("Your hours:", "; ".join(_text(w) for w in windows) + "." if windows else "any time."),
-        ("Night only:", "yes: record only with the Sun down." if settings.get("night_only")
-         else "no: daytime recordings are fine at this frequency."),
+        ("Night only:", f"yes: record only with the Sun down ({_text(settings.get('night') or 'horizon')})."
+         if settings.get("night_only") else "no: daytime recordings are fine at this frequency."),
         ("Moving the dish:", f"at most {_num(reparks, 'g')} time{'' if _float(reparks) == 1 else 's'} "
                              f"a day, {_num(settings.get('repark_minutes'), 'g')} min allowed each time."),
     ]
     return Section("settings", "Plan settings", (Bullets(tuple(items)),))
 
 
-def _safety_section() -> Section:
-    return Section("safety", "Safety first", (Bullets(SAFETY),), style="safety")
+def _safety_section(warnings: tuple = ()) -> Section:
+    """The cautions, after any warning the plan carries (a Sun hazard the user insisted on)."""
+    return Section("safety", "Safety first", warnings + (Bullets(SAFETY),), style="safety")
 
 
 def _goes_wrong_section(steps) -> Section:
@@ -463,6 +470,8 @@ def _drift_day_row(day: dict, bin_width) -> Row:
     setting = [f"elevation {_deg(park.get('alt_deg'))}",
                f"facing {_text(facing)}" if facing else f"azimuth {_deg(park.get('az_deg'))}",
                f"dec {_sdeg(park.get('dec_deg'))}"]
+    if park.get("culmination") == "lower":
+        setting.append("(below the pole)")
     moving = bool(park.get("move"))
     move = ((f"MOVE {_window(park.get('move_start_local'), park.get('move_end_local'), d, False)}",)
             if moving else ("stays",))
@@ -478,13 +487,16 @@ def _drift_day_row(day: dict, bin_width) -> Row:
             # Recorded before the move, with the previous setting.
             line += f" (before the move: dish still at elevation {_deg(dish.get('alt_deg'))})"
         recordings.append(line)
+    hazards = [f"SUN HAZARD: {_text(h.get('action'))}" for h in day.get("sun_hazards") or ()
+               if isinstance(h, dict)]
+    recordings = hazards + recordings
     tuning = day.get("tuning") or {}
     receiver = [f"{_num(tuning.get('centre_mhz'), '.3f')} MHz"] if tuning else ["—"]
     if tuning and tuning.get("fits") is False:
         receiver.append("line does not fit")
     reasons = Counter(_text(s.get("reason")) for s in day.get("skipped") or ())
     skipped = tuple(f"{n} {SKIP_REASONS.get(r, r)}" for r, n in sorted(reasons.items())) or ("—",)
-    style = "move" if moving else ("" if recordings else "idle")
+    style = "warn" if hazards else ("move" if moving else ("" if recordings else "idle"))
     return Row((
         (_day_label(day.get("date"), year=False),),
         tuple(setting),
@@ -569,8 +581,9 @@ def _drift_brief(doc: dict) -> Brief:
                f"the dish is moved {n_moves} time{'s' if n_moves != 1 else ''}.")
     tunings = [(_day_label(day.get("date"), year=False), day["tuning"]) for day in days
                if isinstance(day.get("tuning"), dict)]
+    warnings = tuple(Paragraph(_text(w), "warn") for w in doc.get("warnings") or ())
     sections = (
-        _safety_section(),
+        _safety_section(warnings),
         _site_section(doc),
         _drift_settings(doc),
         _drift_day_section(doc),
@@ -586,11 +599,17 @@ def _drift_brief(doc: dict) -> Brief:
 
 # ------------------------------------------------------------------ survey plan
 
+def _session_end(block: dict):
+    """When a block's part in its session ends: a stow (the dish parked safe from the Sun,
+    perhaps for hours) ends the session when the dish arrives there."""
+    return block.get("start_utc" if block.get("kind") == "stow" else "end_utc")
+
+
 def _sessions(blocks: list[dict]) -> list[list[dict]]:
     """Blocks grouped into observing sessions: a gap over SESSION_GAP_MIN starts a new one."""
     sessions: list[list[dict]] = []
     for block in blocks:
-        gap = (_minutes_between(sessions[-1][-1].get("end_utc"), block.get("start_utc"))
+        gap = (_minutes_between(_session_end(sessions[-1][-1]), block.get("start_utc"))
                if sessions else None)
         if not sessions or gap is None or gap > SESSION_GAP_MIN:
             sessions.append([block])
@@ -601,11 +620,12 @@ def _sessions(blocks: list[dict]) -> list[list[dict]]:
 
 def _survey_rows(session: list[dict], number: int) -> list[Row]:
     first = _parse_time(session[0].get("start_local"))
-    last = _parse_time(session[-1].get("end_local"))
+    end_key = "start_local" if session[-1].get("kind") == "stow" else "end_local"
+    last = _parse_time(session[-1].get(end_key))
     day = first.date() if first else None
     if first and last:
         heading = (f"Session {number}: {_day_label(first.date())}, {_minute(first, 'nearest'):%H:%M} "
-                   f"to {_clock(session[-1].get('end_local'), 'nearest', day)}")
+                   f"to {_clock(session[-1].get(end_key), 'nearest', day)}")
     else:
         heading = f"Session {number}"
     slews = [b for b in session if b.get("kind") == "slew"]
@@ -619,6 +639,9 @@ def _survey_rows(session: list[dict], number: int) -> list[Row]:
         if kind == "slew":
             continue
         minutes = _minutes_between(block.get("start_utc"), block.get("end_utc"))
+        if kind == "stow":
+            rows.append(_survey_stow_row(block, minutes, day))
+            continue
         tuning = block.get("tuning") or {}
         target = (f"{_text(block.get('name'))}",
                   f"l {_deg(block.get('l_deg'))}, b {_sdeg(block.get('b_deg'))}")
@@ -641,6 +664,23 @@ def _survey_rows(session: list[dict], number: int) -> list[Row]:
     return rows
 
 
+def _survey_stow_row(block: dict, minutes, day) -> Row:
+    """A stow: the dish parked where the Sun cannot come near the feed, until the next slew."""
+    what = (f"stow the dish (safe from the Sun) at elevation {_deg(block.get('alt_start_deg'))}, "
+            f"drive azimuth {_deg(block.get('drive_az_start_deg'))}")
+    return Row((
+        (f"{_clock(block.get('start_local'), 'nearest', day)}–"
+         f"{_clock(block.get('end_local'), 'nearest', day)}",),
+        ("stow",),
+        (what,),
+        (f"az {_deg(block.get('az_start_deg'))}", f"el {_deg(block.get('alt_start_deg'))}"),
+        (_num(minutes, ".1f"),),
+        (_deg(block.get("sun_sep_min_deg"), 0),),
+        ("—",),
+        ("☐",),
+    ), "move")
+
+
 def _survey_block_section(doc: dict) -> Section:
     blocks = doc.get("blocks") or []
     header = ("Time (local)", "Kind", "Target", "Az / El", "Minutes", "Sun distance",
@@ -650,7 +690,9 @@ def _survey_block_section(doc: dict) -> Section:
         rows.extend(_survey_rows(session, n))
     clock = _clock_note(doc)
     parts = [Paragraph(f"{clock} Rounded to the nearest minute. The mount moves between blocks "
-                       "(slews); these are counted in each session's heading.", "note")]
+                       "(slews); these are counted in each session's heading. Where the Sun would "
+                       "come near the resting dish, the plan stows it first (safe from the Sun) "
+                       "and it stays there until the next slew.", "note")]
     parts.append(Table(header, tuple(rows), "day-table", ("when", "", "nb", "nb", "", "", "nb", "done"))
                  if blocks
                  else Paragraph("No blocks are scheduled in this period."))
@@ -684,7 +726,8 @@ def _survey_settings(doc: dict) -> Section:
     windows = settings.get("windows") or []
     items = [
         ("Your hours:", "; ".join(_text(w) for w in windows) + "." if windows else "any time."),
-        ("Night only:", "yes." if settings.get("night_only") else "no."),
+        ("Night only:", (f"yes ({_text(settings.get('night') or 'horizon')})."
+                         if settings.get("night_only") else "no.")),
         ("Moon rule:", f"at least {_deg(settings.get('moon_min_sep_deg'), 0)} from the Moon."),
     ]
     return Section("settings", "Plan settings", (Bullets(tuple(items)),))
@@ -699,6 +742,9 @@ def _survey_brief(doc: dict) -> Brief:
     summary = (f"{kinds.get('target', 0)} target blocks ({on_target:.0f} min on targets), "
                f"{kinds.get('reference', 0)} reference blocks and {kinds.get('slew', 0)} slews "
                f"in {len(_sessions(blocks))} sessions.")
+    if kinds.get("stow"):
+        summary += (f" The dish is stowed safe from the Sun {kinds['stow']} "
+                    f"time{'s' if kinds['stow'] != 1 else ''}.")
     tunings = [(f"{_text(b.get('name'))} at {_clock(b.get('start_local'), 'nearest')}", b["tuning"])
                for b in blocks if isinstance(b.get("tuning"), dict)]
     sections = (
@@ -765,6 +811,8 @@ tr.move td { background: var(--move); }
 tr.move td.move { font-weight: bold; }
 td.when, span.nb { white-space: nowrap; }
 tr.idle td { color: var(--muted); }
+tr.warn td { background: var(--safety); border-color: var(--warn); font-weight: bold; }
+p.warn { color: var(--warn); font-weight: bold; }
 tr.group th { background: #eef3f7; text-align: left; font-size: 1.1em; }
 div.line + div.line { margin-top: .25em; }
 td.done { text-align: center; font-size: 1.2rem; }
@@ -904,6 +952,8 @@ def _md_table(header: tuple[str, ...], rows: list[Row]) -> list[str]:
         cells = [_md_cell(c) for c in row.cells]
         if row.style == "move":
             cells[2] = f"**{cells[2]}**"
+        if row.style == "warn":
+            cells = [f"**{c}**" if c else c for c in cells]
         out.append("| " + " | ".join(cells) + " |")
     return out
 
@@ -911,7 +961,8 @@ def _md_table(header: tuple[str, ...], rows: list[Row]) -> list[str]:
 def _md_block(block, chart_paths: dict[str, str]) -> list[str]:
     if isinstance(block, Paragraph):
         text = _md(block.text)
-        return [f"*{text}*" if block.style == "note" else text, ""]
+        styled = {"note": f"*{text}*", "warn": f"**{text}**"}
+        return [styled.get(block.style, text), ""]
     if isinstance(block, Bullets):
         return [f"- **{_md(lead)}** {_md(text)}" for lead, text in block.items] + [""]
     if isinstance(block, Table):

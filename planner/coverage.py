@@ -26,7 +26,7 @@ Conventions 2010). Units: degrees, seconds, MJD (UTC).
 """
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import numpy as np
 
@@ -88,6 +88,7 @@ class Sweep:
     bin_width_deg: float
     night_only: bool
     rows: list[DeclinationCoverage]
+    night_sun_alt_deg: float = 0.0  # night: the Sun's centre below this altitude
 
     @property
     def bin_starts_deg(self) -> np.ndarray:
@@ -203,7 +204,8 @@ def _pick_samples(tpl: _Templates, which: np.ndarray, fractions) -> np.ndarray:
 def sweep(site: Site, pointings: list[Pointing], start_mjd: float, end_mjd: float,
           band_deg: float | None = None, night_only: bool = False, window_intervals=None,
           solar_motion: str = "standard", step_s: float = 120.0,
-          detail_step_s: float = 20.0, per_occurrence: bool = False) -> Sweep:
+          detail_step_s: float = 20.0, per_occurrence: bool = False,
+          night_sun_alt_deg: float = 0.0) -> Sweep:
     """Coverage of each parked pointing over [start_mjd, end_mjd] (UTC).
 
     With ``per_occurrence`` every occurrence also carries its seconds per bin
@@ -212,7 +214,8 @@ def sweep(site: Site, pointings: list[Pointing], start_mjd: float, end_mjd: floa
     ``window_intervals``: (K, 2) UTC MJD intervals when recording is possible
     (``windows.window_intervals_mjd``), or None for any time. A passage is usable
     when its least Sun separation meets the site rule and, with ``night_only``,
-    the Sun stays below the horizon; its bins count only while inside a window
+    the Sun stays below ``night_sun_alt_deg`` (0: the horizon); its bins count only
+    while inside a window
     and inside the period.
     """
     band = site.rules.band_deg if band_deg is None else float(band_deg)
@@ -235,7 +238,7 @@ def sweep(site: Site, pointings: list[Pointing], start_mjd: float, end_mjd: floa
         if tpl.row.size == 0:
             continue
         which, start = _occurrence_starts(tpl, lo, hi, take_running=(k == 0))
-        occ = _judge(site, beam, tpl, which, start, night_only, solar_motion)
+        occ = _judge(site, beam, tpl, which, start, night_only, solar_motion, night_sun_alt_deg)
         occ["id"] = n_done + np.arange(which.size)
         n_done += which.size
         occ["bins"] = [] if per_occurrence else None
@@ -243,12 +246,13 @@ def sweep(site: Site, pointings: list[Pointing], start_mjd: float, end_mjd: floa
         _accumulate(tpl, occ, start_mjd, end_mjd, window_intervals, total, usable_s,
                     in_band_s, in_window_s)
 
-    return _assemble(site, pointings, parts, total, usable_s, in_band_s, in_window_s,
-                     start_mjd, end_mjd, band, bw, night_only, window_intervals is not None)
+    result = _assemble(site, pointings, parts, total, usable_s, in_band_s, in_window_s,
+                       start_mjd, end_mjd, band, bw, night_only, window_intervals is not None)
+    return replace(result, night_sun_alt_deg=float(night_sun_alt_deg))
 
 
 def _judge(site: Site, beam: FixedBeams, tpl: _Templates, which: np.ndarray, start: np.ndarray,
-           night_only: bool, solar_motion: str) -> dict:
+           night_only: bool, solar_motion: str, night_sun_alt_deg: float = 0.0) -> dict:
     """Sun separation, Sun altitude, LSR range and usability of each occurrence."""
     duration = (tpl.end_mjd - tpl.start_mjd)[which]
     # Sun: it moves < 0.2 deg during a passage, so one position per occurrence (at its
@@ -272,7 +276,7 @@ def _judge(site: Site, beam: FixedBeams, tpl: _Templates, which: np.ndarray, sta
     gal3 = vec3 @ ICRS_TO_GALACTIC.T
     l3 = (np.degrees(np.arctan2(gal3[:, 1], gal3[:, 0])) % 360.0).reshape(-1, 3)
     sun_ok = sep >= site.rules.sun_min_sep_deg
-    dark = sun_alt_max < 0.0
+    dark = sun_alt_max < night_sun_alt_deg
     usable = sun_ok & (dark | (not night_only))
     return {"row": tpl.row[which], "which": which, "start": start, "end": start + duration,
             "sun_sep": sep, "sun_alt_max": sun_alt_max, "lsr_min": lsr.min(axis=1),

@@ -4,7 +4,9 @@ A drift plan (``hiplan.plan/1``) gives one VEVENT per recording window and one
 per re-park task (``park.move`` true, from ``move_start`` to ``move_end``); a
 survey plan (``hiplan.survey/1``) gives one VEVENT per ``target`` or
 ``reference`` block, slews being told in the description of the block they
-lead to. Formats: docs/plan-format.md.
+lead to, and a ``stow`` (the mount parks the dish safe from the Sun) in the
+descriptions of the blocks before and after it: the mount does it by itself,
+so it is no task of its own. Formats: docs/plan-format.md.
 
 Rules followed (RFC 5545, Desruisseaux 2009; RFC 7986, Daboo 2016):
 
@@ -31,14 +33,14 @@ from __future__ import annotations
 
 import math
 import uuid
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from datetime import datetime, timedelta, timezone
 from zoneinfo import ZoneInfo, ZoneInfoNotFoundError
 
 import icalendar
 
 from .errors import UserError
-from .planfile import PLAN_SCHEMAS
+from .planfile import PLAN_SCHEMAS, SURVEY_BLOCK_KINDS
 
 _KIND_OF_SCHEMA = {"hiplan.plan/1": "drift", "hiplan.survey/1": "survey"}
 
@@ -59,9 +61,12 @@ SAFETY_TEXT = (
     "band); never transmit. Follow local building and electrical codes."
 )
 
-EVENT_KINDS = ("recording", "repark", "target", "reference")
+EVENT_KINDS = ("sun-hazard", "recording", "repark", "target", "reference")
 _CATEGORY = {"recording": "HI recording", "repark": "dish re-park", "target": "HI survey",
-             "reference": "HI survey"}
+             "reference": "HI survey", "sun-hazard": "SUN HAZARD"}
+# A Sun hazard needs someone at the dish before it starts: its reminder comes at least
+# this long ahead, whatever the plan's alarm lead (our choice: time to get there).
+HAZARD_ALARM_MINUTES = 60
 
 
 @dataclass(frozen=True)
@@ -256,7 +261,30 @@ def _drift_events(doc, site, settings, tz, source) -> list[PlanEvent]:
         if park is not None and park["move"]:
             events.append(_repark(park, windows, centre_mhz, site, tz))
         events.extend(event for event, _ in windows)
+        hazards = _member(day, "sun_hazards", where, source, kind=list, required=False) or []
+        for j, hazard in enumerate(hazards):
+            events.append(_sun_hazard(hazard, f"{where}.sun_hazards[{j}]", site, tz, source))
     return events
+
+
+def _sun_hazard(hazard, where, site, tz, source) -> PlanEvent:
+    """A time the Sun comes too near the feed as planned: the operator must act before it."""
+    if not isinstance(hazard, dict):
+        raise UserError(f"{source}: {where} must be an object, found {_json_type(hazard)}")
+    start, end = _span(hazard, "from_utc", "to_utc", where, source)
+    action = _text(hazard, "action", where, source)
+    sep = _number(hazard, "sep_deg", where, source, 0, 180)
+    summary = f"SUN HAZARD: cover the feed or move the dish before {start.astimezone(tz):%H:%M}"
+    lines = [
+        f"The Sun comes within the feed-safety limit of the dish ({sep:.1f}° at closest), "
+        f"{_clock_span(start, end, tz)} ({tz.key} time).",
+        action,
+        "A dish focuses sunlight on its feed: plastic covers and the LNA can melt or burn. "
+        "Never look along the dish axis toward the Sun.",
+        "", SAFETY_TEXT,
+    ]
+    return PlanEvent("sun-hazard", start, end, summary, "\n".join(lines),
+                     _identity(site, "sun-hazard", start, ""))
 
 
 def _park(park: dict, where: str, source: str) -> dict:
@@ -268,6 +296,7 @@ def _park(park: dict, where: str, source: str) -> dict:
         "az_deg": _number(park, "az_deg", where, source, -360, 360),
         "dec_deg": _number(park, "dec_deg", where, source, -90, 90, required=False),
         "facing": park.get("facing") if park.get("facing") in ("north", "south") else None,
+        "below_pole": park.get("culmination") == "lower",
         "move": move,
     }
     if move:
@@ -341,24 +370,48 @@ def _repark(park, windows, centre_mhz, site, tz) -> PlanEvent:
 def _survey_events(doc, site, tz, source) -> list[PlanEvent]:
     events = []
     slews: list[tuple[datetime, datetime]] = []
+    stowed: str | None = None  # the stow the dish comes from, for the next block's description
     for i, block in enumerate(_member(doc, "blocks", "", source, kind=list)):
         where = f"blocks[{i}]"
         if not isinstance(block, dict):
             raise UserError(f"{source}: {where} must be an object, found {_json_type(block)}")
         kind = block.get("kind")
-        if kind not in ("target", "reference", "slew"):
-            raise UserError(f"{source}: {where}.kind is {kind!r}; expected target, reference "
-                            "or slew")
+        if kind not in SURVEY_BLOCK_KINDS:
+            raise UserError(f"{source}: {where}.kind is {kind!r}; expected "
+                            f"{', '.join(SURVEY_BLOCK_KINDS[:-1])} or {SURVEY_BLOCK_KINDS[-1]}")
+        if kind == "stow":
+            stowed = _stow_text(block, slews, tz, where, source)
+            if events:  # told after the block before it; no task: the mount does it
+                last = events[-1]
+                events[-1] = replace(last, description=last.description.replace(
+                    "\n\n" + SAFETY_TEXT, f"\nAfterwards: {stowed}\n\n{SAFETY_TEXT}"))
+            slews = []
+            continue
         start, end = _span(block, "start_utc", "end_utc", where, source)
         if kind == "slew":
             slews.append((start, end))
             continue
-        events.append(_block(block, kind, start, end, slews, site, tz, where, source))
-        slews = []
+        events.append(_block(block, kind, start, end, slews, site, tz, where, source, stowed))
+        slews, stowed = [], None
     return events
 
 
-def _block(block, kind, start, end, slews, site, tz, where, source) -> PlanEvent:
+def _stow_text(block, slews, tz, where, source) -> str:
+    """'the mount stows the dish (safe from the Sun) at elevation 34.9°, drive azimuth 180.0°, ...'"""
+    start = _instant(block, "start_utc", where, source)
+    end = _instant(block, "end_utc", where, source)
+    if end < start:
+        raise UserError(f"{source}: {_join(where, 'end_utc')} is before start_utc")
+    alt = _number(block, "alt_start_deg", where, source, -90, 90)
+    drive = _number(block, "drive_az_start_deg", where, source, -720, 720)
+    moved = f" (moving {_clock_span(slews[0][0], start, tz)})" if slews else ""
+    return (f"the mount stows the dish (safe from the Sun) at elevation {alt:.1f}°, drive "
+            f"azimuth {drive:.1f}°{moved}, and leaves it there until "
+            f"{end.astimezone(tz):%a %d %b %H:%M} ({tz.key} time).")
+
+
+def _block(block, kind, start, end, slews, site, tz, where, source,
+           stowed: str | None = None) -> PlanEvent:
     name = _text(block, "name", where, source)
     alt0 = _number(block, "alt_start_deg", where, source, -90, 90)
     az0 = _number(block, "az_start_deg", where, source, -360, 720) % 360
@@ -369,6 +422,8 @@ def _block(block, kind, start, end, slews, site, tz, where, source) -> PlanEvent
     role = "target" if kind == "target" else "reference position"
     lines = [f"Observe {name} ({role}), {_clock_span(start, end, tz)} "
              f"({_minutes(start, end)} min, {tz.key} time)."]
+    if stowed:
+        lines.append(f"Before this: {stowed}")
     for s0, s1 in slews:
         lines.append(f"First the dish slews into position, {_clock_span(s0, s1, tz)} "
                      f"({_minutes(s0, s1)} min).")
@@ -430,6 +485,8 @@ def _pointing_text(park: dict) -> str:
         extras.append(f"facing {park['facing']}")
     if park["dec_deg"] is not None:
         extras.append(f"declination {park['dec_deg']:+.1f}°")
+    if park.get("below_pole"):
+        extras.append("below the pole")
     return text + (f" ({', '.join(extras)})" if extras else "")
 
 
@@ -517,9 +574,10 @@ def plan_calendar(doc: dict, alarm_minutes: int | None = None,
     cal.add("calscale", "GREGORIAN")
     cal.add("x-wr-calname", f"HI plan - {name}")
     cal.add("name", f"HI plan - {name}")  # RFC 7986 section 5.1
-    cal.add("description", f"hiplan {doc.get('kind', '')} plan for {name}; "
-                           f"times in {tz.key}. A task keeps its UID when the plan is exported "
-                           "again.")
+    warnings = [w for w in doc.get("warnings") or [] if isinstance(w, str)]
+    cal.add("description", " ".join(warnings + [
+        f"hiplan {doc.get('kind', '')} plan for {name}; times in {tz.key}. A task keeps its UID "
+        "when the plan is exported again."]))
     first, last = _coverage(doc, events)
     cal.add_component(vtimezone(tz, first, last))
     for ev in events:
@@ -561,6 +619,8 @@ def _vevent(ev: PlanEvent, site: dict, tz: ZoneInfo, stamp: datetime, lead_min: 
     vevent.add("geo", (round(float(site["latitude_deg"]), 6),
                        round(float(site["longitude_deg"]), 6)))
     vevent.add("categories", ["hiplan", _CATEGORY[ev.kind]])
+    if ev.kind == "sun-hazard":
+        lead_min = max(lead_min, HAZARD_ALARM_MINUTES)
     alarm = icalendar.Alarm()
     alarm.add("action", "DISPLAY")
     alarm.add("trigger", timedelta(minutes=-lead_min))

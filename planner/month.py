@@ -4,7 +4,7 @@ The problem: over a period of days, choose the dish's declination so that as
 many wanted 1-degree longitude bins as possible reach a target depth
 (integration minutes per bin), given what the observation log already holds.
 A person must move the dish, so a move can happen only at a *move slot*: the
-start of the first operator window of a local day (12:00 local when no windows
+start of the first operator window of a local day (10:00 local when no windows
 are given), at most once per ``min_days_between_moves`` days.
 
 Algorithm: greedy by completion rate, with look-ahead to the end of the
@@ -24,9 +24,20 @@ decision (about 30 decisions a month).
 The per-passage coverage comes from ``coverage.sweep`` (sidereal templates);
 a passage counts for a parking interval only if it lies wholly inside it,
 after the time the move takes (``repark_minutes``).
+
+Feed safety (``SunGuard``) is a hard constraint, above every rule of the
+goal: a setting may be held through a move-slot interval only if the Sun
+stays more than ``sun_hazard_deg`` from its beam while it is up
+(``sunsafety.sun_approaches``), and a move is allowed only if the path the dish
+takes during it stays clear of the Sun too. Where safety and the spacing of
+moves disagree, safety wins. What cannot be avoided (the dish already parked
+where the Sun will cross before the first move slot) or what the user insists
+on (``SunGuard.enforce`` false) becomes a ``HazardTask``: cover the feed or
+move the dish before the time given.
 """
 from __future__ import annotations
 
+from collections.abc import Callable
 from dataclasses import dataclass, field
 from datetime import datetime, timedelta
 
@@ -35,9 +46,14 @@ import numpy as np
 from .coverage import Sweep
 from .errors import UserError
 from .site import Site
+from .avoidance import SUNSET_ALTITUDE_DEG
+from .sunsafety import SunApproaches, move_sun_sep_deg, sun_approaches
 from .timebase import datetime_to_mjd_utc, mjd_to_datetime_utc
 
-DEFAULT_MOVE_HOUR_LOCAL = 12.0
+# Without windows the dish is moved at 10:00 local, not at noon: at noon the Sun sits on
+# the meridian a transit dish is tipped along. Two hours or more from apparent noon (true
+# for 10:00 local in almost every zone) the meridian stays over 20 deg from the Sun.
+DEFAULT_MOVE_HOUR_LOCAL = 10.0
 # When nothing can be finished any more, a move must gain at least this many bins'
 # worth of progress over staying put: a move costs a volunteer's visit.
 MOVE_THRESHOLD_BINS = 0.05
@@ -75,6 +91,34 @@ class Parking:
 
 
 @dataclass(frozen=True)
+class SunGuard:
+    """Feed-safety inputs: the Sun's approaches to every sweep row, and the move check.
+
+    ``move_sep_deg(from_row, t0, t1)`` gives, for every row, the Sun's least distance
+    (deg) from the path of a move from ``from_row`` to that row during [t0, t1], and the
+    Sun's highest altitude then. ``enforce`` false: plan without the constraint (the
+    user insists) and report every hazard as a task.
+    """
+
+    approaches: SunApproaches
+    move_sep_deg: Callable[[int, float, float], tuple[np.ndarray, float]]
+    limit_deg: float
+    enforce: bool = True
+
+
+@dataclass(frozen=True)
+class HazardTask:
+    """A time the Sun comes within the feed-safety limit of the dish as planned."""
+
+    row: int  # sweep row the dish is at (or moving to)
+    kind: str  # "parked" | "move"
+    closest_mjd: float
+    sep_deg: float
+    enter_mjd: float  # Sun closer than the limit from here ...
+    exit_mjd: float  # ... to here
+
+
+@dataclass(frozen=True)
 class MonthPlan:
     """The chosen parkings and the depth they reach."""
 
@@ -83,6 +127,7 @@ class MonthPlan:
     parkings: list[Parking]
     depth_before: np.ndarray  # (B,) minutes
     depth_after: np.ndarray  # (B,) minutes
+    hazards: tuple[HazardTask, ...] = ()
 
     @property
     def done_before(self) -> int:
@@ -139,12 +184,52 @@ def _slot_gains(tables, slots: list[MoveSlot], end_mjd: float, repark_days: floa
     return stay, moved
 
 
+def _unsafe_slots(guard: SunGuard | None, n_rows: int, edges: np.ndarray) -> np.ndarray:
+    """(R, K) True where the Sun endangers the feed of row r during slot interval k."""
+    unsafe = np.zeros((n_rows, edges.size - 1), dtype=bool)
+    if guard is None or not guard.enforce:
+        return unsafe
+    ap = guard.approaches
+    inside = ap.hazard & (ap.exit_mjd > edges[0]) & (ap.enter_mjd < edges[-1])
+    for i in np.flatnonzero(inside):  # a few per unsafe row and day
+        k_lo = np.searchsorted(edges, ap.enter_mjd[i], side="right") - 1
+        k_hi = np.searchsorted(edges, ap.exit_mjd[i], side="left") - 1
+        unsafe[ap.row[i], max(k_lo, 0):max(k_hi, 0) + 1] = True
+    return unsafe
+
+
+def sun_guard(sweep: Sweep, enforce: bool = True) -> SunGuard:
+    """The feed-safety constraints for planning over ``sweep`` (its rows and period)."""
+    site = sweep.site
+    pointings = [r.pointing for r in sweep.rows]
+    approaches = sun_approaches(site, pointings, sweep.start_mjd, sweep.end_mjd)
+
+    def move_sep(from_row: int, t0: float, t1: float):
+        return move_sun_sep_deg(site, pointings[from_row], pointings, t0, t1)
+
+    return SunGuard(approaches, move_sep, site.rules.sun_hazard_deg, enforce)
+
+
+def _moves_ok(guard: SunGuard | None, current: int | None, n_rows: int, t0: float,
+              t1: float) -> np.ndarray:
+    """(R,) True where moving from ``current`` to that row during [t0, t1] keeps the Sun clear."""
+    ok = np.ones(n_rows, dtype=bool)
+    if guard is None or not guard.enforce or current is None:
+        return ok
+    sep, sun_alt_max = guard.move_sep_deg(current, t0, t1)
+    if sun_alt_max > SUNSET_ALTITUDE_DEG:
+        ok = sep >= guard.limit_deg
+    ok[current] = True
+    return ok
+
+
 def plan_month(sweep: Sweep, goal: Goal, slots: list[MoveSlot], start_row: int | None,
-               repark_minutes: float = 15.0, min_days_between_moves: int = 1) -> MonthPlan:
+               repark_minutes: float = 15.0, min_days_between_moves: int = 1,
+               guard: SunGuard | None = None) -> MonthPlan:
     """Choose a parking per move slot by completion rate (see module docstring).
 
     ``start_row``: the sweep row the dish is parked at when the period starts, or None
-    (then the first slot must move it).
+    (then the first slot must move it). ``guard``: feed-safety constraints (None: none).
     """
     tables = _usable_sorted(sweep)
     n_rows = len(sweep.rows)
@@ -159,9 +244,10 @@ def plan_month(sweep: Sweep, goal: Goal, slots: list[MoveSlot], start_row: int |
         parkings.append(Parking(current, None, sweep.start_mjd, first_end))
         depth = depth + _gain(tables[current], sweep.start_mjd, first_end)[0]
     if not slots or n_rows == 0:
-        return _finish(sweep, goal, parkings, depth_before, tables)
+        return _finish(sweep, goal, parkings, depth_before, tables, guard, repark)
     stay, moved = _slot_gains(tables, slots, sweep.end_mjd, repark)
     edges = np.array([s.mjd for s in slots] + [sweep.end_mjd])
+    unsafe = _unsafe_slots(guard, n_rows, edges)
     k = 0
     while k < len(slots):  # one decision per commitment, at most one per slot
         n_left = len(slots) - k
@@ -171,25 +257,41 @@ def plan_month(sweep: Sweep, goal: Goal, slots: list[MoveSlot], start_row: int |
             first[current] = stay[current, k]
         cum = first[:, None, :] + np.concatenate(
             [np.zeros((n_rows, 1, first.shape[1])), np.cumsum(stay[:, k + 1:], axis=1)], axis=1)
+        # Feasible (row, length): safe for every slot of the stay, and a safe move there.
+        safe_run = np.cumprod(~unsafe[:, k:], axis=1).sum(axis=1)
+        reachable = _moves_ok(guard, current, n_rows, edges[k], edges[k] + repark)
+        lengths = np.arange(1, n_left + 1)
+        feasible = (lengths[None, :] <= safe_run[:, None]) & reachable[:, None]
+        if not feasible.any():
+            when = mjd_to_datetime_utc(edges[k]).astimezone(sweep.site.tz).strftime("%Y-%m-%d")
+            raise UserError(f"no reachable setting is safe from the Sun on {when}: it passes within "
+                            f"{guard.limit_deg:g}° of every one (cover the feed or stow the dish; "
+                            "--allow-sun-hazard plans anyway, with a warning for every such day)")
+        min_j = 1 if current is None else min_days_between_moves
+        # A new parking must last at least the move spacing, unless the Sun cuts it short.
+        min_len = np.minimum(min_j, np.maximum(safe_run, 1))
+        feasible &= lengths[None, :] >= min_len[:, None]
         open_bins = goal.want & (depth < target - 1e-9)
         completes = ((depth[None, None, :] + cum >= target - 1e-9) & open_bins).sum(axis=2)
         span = edges[k + 1:k + 1 + n_left] - edges[k]
-        rate = completes / span[None, :]
-        min_j = 1 if current is None else min_days_between_moves
-        rate[:, :min_j - 1] = 0.0  # a new parking must last at least the move spacing
+        rate = np.where(feasible, completes / span[None, :], -1.0)
         if rate.max() > 0:
             best = np.flatnonzero(rate.max(axis=1) >= rate.max() - 1e-12)
             # Ties: stay put, else the lowest declination (rows are in ascending order).
             row = current if current in best else int(best[0])
             j = int(np.argmax(rate[row] >= rate[row].max() - 1e-12)) + 1
         else:
-            # Nothing can be finished any more: make the most capped progress before the end.
+            # Nothing can be finished any more: make the most capped progress, each row
+            # for as long as it may stay.
             need = goal.need(depth)
-            progress = np.minimum(cum[:, -1], need).sum(axis=1) / target
+            longest = np.where(feasible.any(axis=1), n_left - np.argmax(feasible[:, ::-1], axis=1), 0)
+            reach = cum[np.arange(n_rows), np.maximum(longest - 1, 0)]
+            progress = np.minimum(reach, need).sum(axis=1) / target
             if current is not None:
                 progress[current] += MOVE_THRESHOLD_BINS
-            row, j = int(np.argmax(progress)), n_left
-        j = max(j, min(min_j, n_left))
+            progress[longest == 0] = -np.inf
+            row = int(np.argmax(progress))
+            j = int(longest[row])
         if row != current:
             if parkings:
                 parkings[-1].end_mjd = edges[k]
@@ -199,14 +301,37 @@ def plan_month(sweep: Sweep, goal: Goal, slots: list[MoveSlot], start_row: int |
             parkings[-1].end_mjd = edges[k + j]
         depth = depth + cum[row, j - 1]
         k += j
-    return _finish(sweep, goal, parkings, depth_before, tables)
+    return _finish(sweep, goal, parkings, depth_before, tables, guard, repark)
 
 
-def _finish(sweep, goal, parkings, depth_before, tables) -> MonthPlan:
+def _hazard_tasks(guard: SunGuard | None, parkings: list[Parking], repark: float,
+                  start_mjd: float) -> tuple[HazardTask, ...]:
+    """Every time the Sun endangers the feed as planned (unavoidable, or insisted on)."""
+    if guard is None:
+        return ()
+    ap = guard.approaches
+    tasks = []
+    previous = None
+    for p in parkings:  # a handful of parkings
+        held_from = p.move_mjd if p.move_mjd is not None else start_mjd
+        for i in ap.hazards_overlapping(p.row, held_from, p.end_mjd):
+            tasks.append(HazardTask(p.row, "parked", float(ap.closest_mjd[i]), float(ap.sep_deg[i]),
+                                    float(ap.enter_mjd[i]), float(ap.exit_mjd[i])))
+        if p.move_mjd is not None and previous is not None:
+            sep, sun_alt = guard.move_sep_deg(previous, p.move_mjd, p.move_mjd + repark)
+            if sun_alt > SUNSET_ALTITUDE_DEG and sep[p.row] < guard.limit_deg:
+                tasks.append(HazardTask(p.row, "move", p.move_mjd, float(sep[p.row]), p.move_mjd,
+                                        p.move_mjd + repark))
+        previous = p.row
+    return tuple(sorted(tasks, key=lambda t: (t.enter_mjd, t.row)))
+
+
+def _finish(sweep, goal, parkings, depth_before, tables, guard=None, repark=0.0) -> MonthPlan:
     for p in parkings:
         p.occurrences = _gain(tables[p.row], p.start_mjd, p.end_mjd)[1]
     return MonthPlan(sweep=sweep, goal=goal, parkings=parkings, depth_before=depth_before,
-                     depth_after=_depth_of(sweep, goal, parkings, tables))
+                     depth_after=_depth_of(sweep, goal, parkings, tables),
+                     hazards=_hazard_tasks(guard, parkings, repark, sweep.start_mjd))
 
 
 def _depth_of(sweep: Sweep, goal: Goal, parkings: list[Parking], tables) -> np.ndarray:

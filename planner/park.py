@@ -1,16 +1,23 @@
 """Declination advice for a parked dish: which declination serves the survey best.
 
-Candidates are meridian pointings (upper culmination) at every declination the
-dish can reach, in steps of half the beamwidth by default. A parked beam sees
-the same declination circle every day whatever its hour angle, so one pointing
-per declination covers the choice (only the time of day differs).
+Candidates are meridian pointings at every declination the dish can reach: at
+upper culmination and, where the mount can face the pole, below the pole
+(lower culmination, 12 h later), on a grid of half the beamwidth by default,
+plus the exact ends of each reachable range and the dish's current setting.
+A parked beam sees the same declination circle every day whatever its hour
+angle; the two culminations differ in the time of day, which decides night,
+windows and the Sun.
+
+Feed safety first: a setting the Sun approaches within the site's
+``sun_hazard_deg`` during the period (``sunsafety``) is marked unsafe, ranked
+below every safe one and never recommended.
 
 Ranking (``score``): for each wanted longitude bin that still needs
 integration, the fraction of the missing minutes this declination delivers
 in usable passages over the period, capped at 1, summed over bins. A score
 of 12.5 means "worth twelve and a half bins brought to the target depth".
-Ties go to the declination with more usable hours, then the lower declination
-(deterministic).
+Ties go to more usable hours, then upper culmination, then the lower
+declination (deterministic).
 """
 from __future__ import annotations
 
@@ -20,8 +27,10 @@ import numpy as np
 
 from .coverage import DeclinationCoverage, Sweep
 from .errors import UserError
-from .pointing import Pointing, on_meridian_at_dec, reachability_problem
+from .pointing import (Pointing, below_pole_at_dec, meridian_dec_ranges, on_meridian_at_dec,
+                       reachability_problem)
 from .sensitivity import radiometer_rms_k
+from .sunsafety import SunApproaches
 from .site import Site
 from .timebase import mjd_to_datetime_utc
 
@@ -58,18 +67,38 @@ def parse_want(text: str | None, bin_width_deg: float = 1.0, option: str = "--wa
     return mask
 
 
-def candidate_pointings(site: Site, step_deg: float | None = None) -> list[Pointing]:
-    """Reachable meridian pointings from dec -90 to +90 in ``step_deg`` (default HPBW/2)."""
+def candidate_pointings(site: Site, step_deg: float | None = None,
+                        extra: tuple[Pointing, ...] = ()) -> list[Pointing]:
+    """Reachable meridian pointings, upper culmination first, then below the pole.
+
+    Declinations on the grid -90 + k * ``step_deg`` (default HPBW/2) inside each
+    reachable range (``pointing.meridian_dec_ranges``), plus the exact ends of every
+    range, plus ``extra`` pointings (the dish's current setting) when reachable.
+    """
     step = site.dish.beamwidth_deg / 2.0 if step_deg is None else float(step_deg)
     if not step > 0:
         raise UserError(f"--step: {step_deg} must be positive")
-    decs = np.arange(-90.0, 90.0 + 1e-9, step)
-    out = []
-    for dec in decs:  # ~100 declinations, each a cheap closed-form check
-        p = on_meridian_at_dec(site, float(np.round(dec, 6)))
-        if reachability_problem(site, p) is None:
+    out: list[Pointing] = []
+    for rng in meridian_dec_ranges(site):  # at most three ranges
+        k_lo = int(np.ceil((rng.lo_deg + 90.0) / step - 1e-9))
+        k_hi = int(np.floor((rng.hi_deg + 90.0) / step + 1e-9))
+        grid = -90.0 + step * np.arange(k_lo, k_hi + 1)
+        decs = np.unique(np.round(np.concatenate([[rng.lo_deg], grid, [rng.hi_deg]]), 6))
+        make = on_meridian_at_dec if rng.culmination == "upper" else below_pole_at_dec
+        for dec in decs:  # ~100 declinations, each a cheap closed-form check
+            if rng.culmination == "lower" and abs(dec) >= 90.0 - 1e-9:
+                continue  # the pole itself is the upper range's end
+            p = make(site, float(dec))
+            if reachability_problem(site, p) is None:
+                out.append(p)
+    for p in extra:
+        if reachability_problem(site, p) is None and not any(_same(p, q) for q in out):
             out.append(p)
-    return out
+    return sorted(out, key=lambda p: (p.culmination != "upper", p.dec_deg, p.ha_deg))
+
+
+def _same(a: Pointing, b: Pointing) -> bool:
+    return abs(a.dec_deg - b.dec_deg) < 1e-6 and abs(a.ha_deg - b.ha_deg) < 1e-6
 
 
 @dataclass(frozen=True)
@@ -86,6 +115,10 @@ class Advice:
     rms_per_bin_day_k: float | None  # median over bins with usable time
     needed_bins_served: int
     score: float
+    sun_safe: bool = True  # the Sun never comes within sun_hazard_deg of the parked beam
+    sun_closest_deg: float = float("inf")  # least Sun distance over the period
+    sun_closest_mjd: float = float("nan")
+    hazard_dates: tuple[str, ...] = ()  # local dates with a Sun hazard
     reason: str = ""
 
     @property
@@ -94,13 +127,16 @@ class Advice:
 
 
 def _facing(p: Pointing) -> str:
-    return "zenith" if p.alt_deg > 89.999 else ("south" if abs(p.az_deg - 180.0) < 1e-6 else "north")
+    return p.facing
 
 
 def _local_times(starts: np.ndarray, site: Site, which: str) -> tuple[str, ...]:
+    """Local HH:MM of the passages on the first (or last) local day with any (starts sorted)."""
     if starts.size == 0:
         return ()
     tz = site.tz
+    # Only the first/last 1.5 days can hold that local day (offsets are under 15 h).
+    starts = starts[starts < starts[0] + 1.5] if which == "first" else starts[starts > starts[-1] - 1.5]
     days = np.array([mjd_to_datetime_utc(t).astimezone(tz).date().toordinal() for t in starts])
     pick = days == (days.min() if which == "first" else days.max())
     return tuple(mjd_to_datetime_utc(t).astimezone(tz).strftime("%H:%M") for t in starts[pick])
@@ -124,14 +160,23 @@ def compact_bins(bins, bin_width_deg: float = 1.0) -> str:
 
 
 def advise(sweep: Sweep, want: np.ndarray, done_minutes: np.ndarray,
-           target_minutes: float = DEFAULT_TARGET_MINUTES) -> list[Advice]:
-    """Rank the sweep's declinations for the wanted, still-uncovered bins (best first)."""
+           target_minutes: float = DEFAULT_TARGET_MINUTES,
+           approaches: SunApproaches | None = None) -> list[Advice]:
+    """Rank the sweep's declinations for the wanted, still-uncovered bins (best first).
+
+    ``approaches`` (``sunsafety.sun_approaches`` for the sweep's pointings over its
+    period): a setting the Sun makes unsafe for the feed is never ranked above a
+    safe one.
+    """
     site = sweep.site
     days = sweep.end_mjd - sweep.start_mjd
     need_min = np.where(want, np.maximum(target_minutes - done_minutes, 0.0), 0.0)
     width_hz = site.receiver.channel_width_khz * 1e3
+    n_rows = len(sweep.rows)
+    closest_deg, closest_mjd = (approaches.closest_per_row(n_rows) if approaches is not None
+                                else (np.full(n_rows, np.inf), np.full(n_rows, np.nan)))
     advice = []
-    for row in sweep.rows:  # one per declination
+    for r, row in enumerate(sweep.rows):  # one per declination
         occ = row.occurrences
         usable_min = row.bin_usable_s / 60.0
         served = np.where(need_min > 0, np.minimum(usable_min / np.where(need_min > 0, need_min, 1), 1), 0)
@@ -140,6 +185,8 @@ def advise(sweep: Sweep, want: np.ndarray, done_minutes: np.ndarray,
         rms = (float(np.median(radiometer_rms_k(site.receiver.tsys_k, width_hz, per_day_s)))
                if usable_bins.size else None)
         starts = np.sort(occ.start_mjd)
+        hazards = (np.flatnonzero(approaches.hazard & (approaches.row == r))
+                   if approaches is not None else np.zeros(0, int))
         advice.append(Advice(
             coverage=row, usable_bins=usable_bins,
             passages_per_day=occ.start_mjd.size / days,
@@ -148,17 +195,53 @@ def advise(sweep: Sweep, want: np.ndarray, done_minutes: np.ndarray,
             times_last_day=_local_times(starts, site, "last"),
             usable_hours=float(row.bin_usable_s.sum() / 3600.0), rms_per_bin_day_k=rms,
             needed_bins_served=int(np.count_nonzero((usable_min > 0) & (need_min > 0))),
-            score=float(served.sum()),
+            score=float(served.sum()), sun_safe=hazards.size == 0,
+            sun_closest_deg=float(closest_deg[r]), sun_closest_mjd=float(closest_mjd[r]),
+            hazard_dates=_local_dates(approaches.closest_mjd[hazards], site) if hazards.size else (),
         ))
-    advice.sort(key=lambda a: (-round(a.score, 6), -round(a.usable_hours, 6), a.pointing.dec_deg))
+    advice.sort(key=lambda a: (not a.sun_safe, -round(a.score, 6), -round(a.usable_hours, 6),
+                               a.pointing.culmination != "upper", a.pointing.dec_deg))
     return [_with_reason(a, sweep, need_min) for a in advice]
+
+
+def recommended(advice: list[Advice]) -> list[Advice]:
+    """The settings worth recommending: Sun-safe and serving some still-needed bin (best first)."""
+    return [a for a in advice if a.sun_safe and a.score > 0]
+
+
+def _local_dates(mjd: np.ndarray, site: Site) -> tuple[str, ...]:
+    tz = site.tz
+    return tuple(sorted({mjd_to_datetime_utc(t).astimezone(tz).date().isoformat() for t in mjd}))
+
+
+def date_ranges(dates: tuple[str, ...]) -> str:
+    """ISO dates as compact runs, e.g. '2027-06-10 – 06-16, 06-20'."""
+    from datetime import date as _date
+    days = sorted(_date.fromisoformat(d) for d in dates)
+    runs: list[list] = []
+    for d in days:
+        if runs and (d - runs[-1][1]).days == 1:
+            runs[-1][1] = d
+        else:
+            runs.append([d, d])
+    parts = []
+    for i, (a, b) in enumerate(runs):
+        first = a.isoformat() if i == 0 else a.strftime("%m-%d")
+        parts.append(first if a == b else f"{first} – {b.strftime('%m-%d')}")
+    return ", ".join(parts)
 
 
 def _with_reason(a: Advice, sweep: Sweep, need_min: np.ndarray) -> Advice:
     """Attach a one-sentence explanation."""
     from dataclasses import replace
     p, row = a.pointing, a.coverage
-    head = f"Dec {p.dec_deg:+.1f}° (elevation {p.alt_deg:.1f}° {_facing(p)})"
+    below = ", below the pole" if p.culmination == "lower" else ""
+    head = f"Dec {p.dec_deg:+.1f}° (elevation {p.alt_deg:.1f}° {_facing(p)}{below})"
+    if not a.sun_safe:
+        return replace(a, reason=(
+            f"{head}: UNSAFE, the Sun passes {a.sun_closest_deg:.1f}° from the beam "
+            f"(limit {sweep.site.rules.sun_hazard_deg:g}°) on {date_ranges(a.hazard_dates)}; "
+            "do not park here then."))
     if row.occurrences.start_mjd.size == 0:
         return replace(a, reason=f"{head}: the beam never comes within {sweep.band_deg:g}° of the plane.")
     if a.usable_bins.size == 0:

@@ -15,7 +15,7 @@ import numpy as np
 
 from .errors import UserError
 from .galaxy import RotationModel
-from .month import MonthPlan, gap_reasons
+from .month import HazardTask, MonthPlan, gap_reasons
 from .park import _facing, compact_bins
 from .report import _round_floats, period_summary
 from .timebase import iso_local, iso_utc, mjd_to_datetime_utc
@@ -26,6 +26,8 @@ SURVEY_SCHEMA = "hiplan.survey/1"
 PLAN_SCHEMAS = (DRIFT_SCHEMA, SURVEY_SCHEMA)
 _DRIFT_KEYS = ("site", "period", "settings", "days", "summary")
 _SURVEY_KEYS = ("site", "period", "settings", "blocks", "unscheduled")
+# Survey block kinds (docs/plan-format.md); only target blocks are observations to log.
+SURVEY_BLOCK_KINDS = ("target", "reference", "slew", "stow")
 
 
 MAX_PLAN_BYTES = 50_000_000  # a two-year plan is ~2 MB; anything this big is not a plan
@@ -79,6 +81,12 @@ def check_plan(doc, src: str) -> None:
     listing = "days" if schema == DRIFT_SCHEMA else "blocks"
     if not isinstance(doc[listing], list):
         raise UserError(f"{src}: field '{listing}' is not a list")
+    if schema == SURVEY_SCHEMA:
+        for i, block in enumerate(doc["blocks"]):
+            kind = block.get("kind") if isinstance(block, dict) else None
+            if kind not in SURVEY_BLOCK_KINDS:
+                raise UserError(f"{src}: blocks[{i}].kind is {kind!r}; expected "
+                                f"{', '.join(SURVEY_BLOCK_KINDS[:-1])} or {SURVEY_BLOCK_KINDS[-1]}")
 
 
 def drift_plan_document(plan: MonthPlan, settings: dict, model: RotationModel,
@@ -90,7 +98,7 @@ def drift_plan_document(plan: MonthPlan, settings: dict, model: RotationModel,
     first_day = mjd_to_datetime_utc(sweep.start_mjd).astimezone(tz).date()
     n_days = (mjd_to_datetime_utc(sweep.end_mjd).astimezone(tz).date() - first_day).days
     days = [{"date": (first_day + timedelta(days=d)).isoformat(), "park": None, "recordings": [],
-             "skipped": [], "tuning": None} for d in range(n_days)]
+             "skipped": [], "tuning": None, "sun_hazards": []} for d in range(n_days)]
 
     def day_of(mjd: float) -> int:
         return (mjd_to_datetime_utc(mjd).astimezone(tz).date() - first_day).days
@@ -177,6 +185,10 @@ def drift_plan_document(plan: MonthPlan, settings: dict, model: RotationModel,
             "lsr_corr_max_kms": setup.lsr_corr_max_kms}
     for day in days:
         day["skipped"].sort(key=lambda s: s["start_utc"])
+    for task in plan.hazards:
+        d = min(max(day_of(task.enter_mjd), 0), n_days - 1)
+        days[d]["sun_hazards"].append(hazard_record(task, sweep.rows[task.row].pointing, tz))
+    warnings = hazard_warnings(plan.hazards, settings.get("allow_sun_hazard", False), tz)
 
     wanted = np.flatnonzero(goal.want)
     reasons = gap_reasons(sweep, goal, plan.depth_after, windows_limit_recording)
@@ -189,11 +201,13 @@ def drift_plan_document(plan: MonthPlan, settings: dict, model: RotationModel,
         "schema": DRIFT_SCHEMA, "kind": "drift", "site": site.summary(),
         "period": period_summary(sweep.start_mjd, sweep.end_mjd, tz),
         "settings": settings,
+        "warnings": warnings,
         "days": days,
         "summary": {
             "wanted_bins": int(wanted.size), "done_before": plan.done_before,
             "done_after": plan.done_after, "target_minutes": goal.target_minutes,
             "moves": sum(1 for p in plan.parkings if p.move_mjd is not None),
+            "sun_hazards": len(plan.hazards),
             "depth_before_min": {str(_tidy(b * bw)): float(plan.depth_before[b]) for b in wanted},
             "depth_after_min": {str(_tidy(b * bw)): float(plan.depth_after[b]) for b in wanted},
             "gaps": gaps,
@@ -204,7 +218,43 @@ def drift_plan_document(plan: MonthPlan, settings: dict, model: RotationModel,
 
 def _dish(p) -> dict:
     """The dish setting of a parked pointing, as plans record it."""
-    return {"dec_deg": p.dec_deg, "alt_deg": p.alt_deg, "az_deg": p.az_deg, "facing": _facing(p)}
+    return {"dec_deg": p.dec_deg, "alt_deg": p.alt_deg, "az_deg": p.az_deg, "facing": _facing(p),
+            "culmination": p.culmination}
+
+
+def _hhmm(mjd: float, tz) -> str:
+    return mjd_to_datetime_utc(mjd).astimezone(tz).strftime("%H:%M")
+
+
+def hazard_record(task: HazardTask, pointing, tz) -> dict:
+    """One Sun hazard of a drift plan as the plan records it, with the operator's action."""
+    if task.kind == "move":
+        action = (f"The move at {_hhmm(task.enter_mjd, tz)} sweeps the beam {task.sep_deg:.1f}° "
+                  "from the Sun: cover the feed before moving the dish, or move it at another time.")
+    else:
+        # The enter time is floored to the minute: act before the Sun gets that close.
+        enter = mjd_to_datetime_utc(task.enter_mjd).astimezone(tz).replace(second=0, microsecond=0)
+        action = (f"The Sun passes {task.sep_deg:.1f}° from the beam at {_hhmm(task.closest_mjd, tz)}: "
+                  f"cover the feed or move the dish off this setting before {enter:%H:%M} "
+                  f"(the Sun is too close until {_hhmm(task.exit_mjd, tz)}).")
+    return {"kind": task.kind, "closest_utc": iso_utc(task.closest_mjd),
+            "closest_local": iso_local(task.closest_mjd, tz), "sep_deg": task.sep_deg,
+            "from_utc": iso_utc(task.enter_mjd), "to_utc": iso_utc(task.exit_mjd),
+            "from_local": iso_local(task.enter_mjd, tz), "to_local": iso_local(task.exit_mjd, tz),
+            "dish": _dish(pointing), "action": action}
+
+
+def hazard_warnings(hazards, insisted: bool, tz) -> list[str]:
+    """Plan-level warnings about the Sun and the feed (empty when the plan is safe)."""
+    if not hazards:
+        return []
+    dates = sorted({mjd_to_datetime_utc(t.enter_mjd).astimezone(tz).date().isoformat() for t in hazards})
+    why = ("because --allow-sun-hazard was given" if insisted else
+           "because the dish is already parked there before the first move slot")
+    return [f"SUN HAZARD: this plan brings the Sun within the feed-safety limit of the dish on "
+            f"{len(dates)} day{'s' if len(dates) != 1 else ''} ({', '.join(dates[:8])}"
+            f"{', …' if len(dates) > 8 else ''}) {why}; each such day has a task: cover the feed or "
+            "move the dish before the time given."]
 
 
 def _tidy(value):
@@ -217,7 +267,8 @@ def plan_log_rows(doc: dict, quality: str = "good", note: str = "from plan") -> 
 
     Drift plans: one row per recording and longitude bin (``l_from_deg`` =
     ``l_to_deg`` = the bin start), crediting that bin's minutes, so a log read back
-    gives exactly the depth the plan promises. Survey plans: one row per target block.
+    gives exactly the depth the plan promises. Survey plans: one row per target block
+    (references, slews and Sun-safe stows are not observations of the survey).
     Mark rows ``bad`` (or delete them) for recordings that did not happen.
     """
     rows = []

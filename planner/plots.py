@@ -161,7 +161,8 @@ def _edges_from_centres(centres: np.ndarray) -> np.ndarray:
 
 def coverage_atlas(dec_deg, bin_starts_deg, usable_hours, *, reachable_dec=(-90.0, 90.0),
                    wanted_bins=(), covered_bins=(), site_name: str = "", period_text: str = "",
-                   band_deg: float = 3.0, bin_width_deg: float = 1.0) -> Figure:
+                   band_deg: float = 3.0, bin_width_deg: float = 1.0, lower_dec_deg=None,
+                   lower_hours=None) -> Figure:
     """Where a drifting beam crosses the galactic plane: declination x longitude atlas.
 
     ``dec_deg`` (D,) parked declinations (deg, rows, ascending); ``bin_starts_deg``
@@ -172,6 +173,9 @@ def coverage_atlas(dec_deg, bin_starts_deg, usable_hours, *, reachable_dec=(-90.
     ``covered_bins``: bin starts (deg) shown in a strip above the map (wanted,
     and already covered by the observation log). The galactic plane b = 0 and
     the band edges b = +/-``band_deg`` are drawn as declination curves.
+    ``lower_dec_deg`` (L,) / ``lower_hours`` (L, B): the same for settings below the
+    pole (lower culmination, 12 h later), drawn as a second map under the first,
+    over their own declination span, on the same colour scale.
     Colours: ``cividis`` for hours, Okabe-Ito for lines and strips.
     """
     dec = np.asarray(dec_deg, dtype=float).ravel()
@@ -182,16 +186,28 @@ def coverage_atlas(dec_deg, bin_starts_deg, usable_hours, *, reachable_dec=(-90.
                          f"({dec.size}, {starts.size}) (declinations, bins)")
     order = np.argsort(dec)
     dec, hours = dec[order], hours[order]
+    has_lower = lower_dec_deg is not None and np.size(lower_dec_deg) > 0
+    if has_lower:
+        low_dec = np.asarray(lower_dec_deg, dtype=float).ravel()
+        low_hours = np.asarray(lower_hours, dtype=float).reshape(low_dec.size, starts.size)
+        low_order = np.argsort(low_dec)
+        low_dec, low_hours = low_dec[low_order], low_hours[low_order]
 
-    fig = Figure(figsize=(11.0, 7.0), layout="constrained")
-    strip, ax = fig.subplots(2, 1, sharex=True, height_ratios=[1, 9])
+    fig = Figure(figsize=(11.0, 9.0 if has_lower else 7.0), layout="constrained")
+    if has_lower:
+        low_span = max(float(np.ptp(low_dec)) + 10.0, 25.0)
+        strip, ax, ax_low = fig.subplots(3, 1, sharex=True, height_ratios=[1, 9, 9 * low_span / 180.0])
+    else:
+        strip, ax = fig.subplots(2, 1, sharex=True, height_ratios=[1, 9])
+        ax_low = None
 
     l_edges = np.append(starts, starts[-1] + bin_width_deg) if starts.size else np.array([0.0, 1.0])
-    masked = np.ma.masked_less_equal(hours, 0.0)
-    vmax = max(float(hours.max()) if hours.size else 0.0, 1e-3)
-    mesh = ax.pcolormesh(l_edges, _edges_from_centres(dec), masked, cmap="cividis",
-                         vmin=0.0, vmax=vmax, shading="flat")
-    fig.colorbar(mesh, ax=[strip, ax], label="Usable hours in the period (h)", pad=0.01)
+    vmax = max(float(hours.max()) if hours.size else 0.0,
+               float(low_hours.max()) if has_lower and low_hours.size else 0.0, 1e-3)
+    mesh = ax.pcolormesh(l_edges, _edges_from_centres(dec), np.ma.masked_less_equal(hours, 0.0),
+                         cmap="cividis", vmin=0.0, vmax=vmax, shading="flat")
+    fig.colorbar(mesh, ax=[strip, ax] + ([ax_low] if has_lower else []),
+                 label="Usable hours in the period (h)", pad=0.01)
 
     lo, hi = sorted(float(v) for v in reachable_dec)
     unreachable = {"facecolor": "none", "edgecolor": _GREY, "hatch": "//", "linewidth": 0.0}
@@ -199,17 +215,31 @@ def coverage_atlas(dec_deg, bin_starts_deg, usable_hours, *, reachable_dec=(-90.
     ax.axhspan(hi, 90.0, **unreachable)
 
     l_grid = np.linspace(0.0, 360.0, 721)
-    ax.plot(l_grid, plane_declination_deg(l_grid), color=OKABE_ITO["vermillion"], lw=1.8)
-    for sign in (-1.0, 1.0):
-        band_dec = galactic_to_icrs_deg(l_grid, np.full_like(l_grid, sign * band_deg))[1]
-        ax.plot(l_grid, band_dec, color=OKABE_ITO["vermillion"], lw=0.9, ls="--")
+    for axis in (ax, ax_low) if has_lower else (ax,):
+        axis.plot(l_grid, plane_declination_deg(l_grid), color=OKABE_ITO["vermillion"], lw=1.8)
+        for sign in (-1.0, 1.0):
+            band_dec = galactic_to_icrs_deg(l_grid, np.full_like(l_grid, sign * band_deg))[1]
+            axis.plot(l_grid, band_dec, color=OKABE_ITO["vermillion"], lw=0.9, ls="--")
+        axis.grid(True, color="0.85", lw=0.5)
+        axis.set_axisbelow(True)
 
-    _longitude_axis(ax)
     ax.set_ylim(-90.0, 90.0)
     ax.set_yticks(np.arange(-90.0, 91.0, 30.0))
     ax.set_ylabel("Declination of the parked beam (deg)")
-    ax.grid(True, color="0.85", lw=0.5)
-    ax.set_axisbelow(True)
+    if has_lower:
+        ax_low.pcolormesh(l_edges, _edges_from_centres(low_dec), np.ma.masked_less_equal(low_hours, 0.0),
+                          cmap="cividis", vmin=0.0, vmax=vmax, shading="flat")
+        centre = 0.5 * (low_dec.min() + low_dec.max())
+        ax_low.set_ylim(max(centre - low_span / 2, -90.0), min(centre + low_span / 2, 90.0))
+        ax_low.set_ylabel("Dec, below the pole (deg)")
+        ax_low.set_title(f"Below the pole: the same declinations 12 h later "
+                         f"(reachable Dec {low_dec.min():.1f}° to {low_dec.max():.1f}°)", fontsize=10)
+        _longitude_axis(ax_low)
+        ax.tick_params(axis="x", labelbottom=False)
+        ax.set_title("Upper culmination (on the meridian at the declination's highest point)",
+                     fontsize=10)
+    else:
+        _longitude_axis(ax)
 
     for row, (bins, colour) in enumerate(((covered_bins, OKABE_ITO["green"]),
                                           (wanted_bins, OKABE_ITO["orange"]))):
@@ -229,7 +259,7 @@ def coverage_atlas(dec_deg, bin_starts_deg, usable_hours, *, reachable_dec=(-90.
         Line2D([], [], color=OKABE_ITO["vermillion"], lw=0.9, ls="--",
                label=f"band edges (b = ±{band_deg:g}°)"),
         Patch(facecolor="none", edgecolor=_GREY, hatch="//",
-              label=f"not reachable (outside Dec {lo:g}° to {hi:g}°)"),
+              label=f"not reachable (outside Dec {lo:.1f}° to {hi:.1f}°)"),
         Patch(facecolor=OKABE_ITO["orange"], label="wanted bins"),
         Patch(facecolor=OKABE_ITO["green"], label="already covered (observation log)"),
     ]
@@ -494,6 +524,12 @@ def month_chart(plan: dict) -> Figure:
                         ms=7, gid="repark")
             legend["park"] = Line2D([], [], color="black", lw=2.2, marker="v", ms=7,
                                     label="re-park the dish (move window)")
+        for hazard in day.get("sun_hazards") or []:
+            place(*_local_span(hazard["from_local"], hazard["to_local"]), -0.5, 1.0,
+                  facecolor="none", edgecolor=OKABE_ITO["vermillion"], hatch="\\\\", lw=1.5,
+                  zorder=4.5, gid="sun-hazard")
+            legend["hazard"] = Patch(facecolor="none", edgecolor=OKABE_ITO["vermillion"], hatch="\\\\",
+                                     label="SUN HAZARD: cover the feed or move the dish first")
 
     labels = []
     for i in range(rows):
@@ -523,9 +559,12 @@ def month_chart(plan: dict) -> Figure:
     ax.set_axisbelow(True)
     fig.colorbar(cmap, ax=ax, label="Galactic longitude at mid-recording (deg)",
                  ticks=np.arange(0, 361, 60), pad=0.01)
-    fig.suptitle(f"Drift plan: {site.get('name', '')}\n{period_wall[0]:%Y-%m-%d %H:%M} to "
-                 f"{period_wall[1]:%Y-%m-%d %H:%M} local time ({site['timezone']})")
-    order = ["night", "windows", "rec", "sun", "other", "park", "dst", "outside"]
+    title = (f"Drift plan: {site.get('name', '')}\n{period_wall[0]:%Y-%m-%d %H:%M} to "
+             f"{period_wall[1]:%Y-%m-%d %H:%M} local time ({site['timezone']})")
+    if plan.get("warnings"):
+        title += "\nSUN HAZARD on the hatched red days: read the plan's warning before observing"
+    fig.suptitle(title, color=OKABE_ITO["vermillion"] if plan.get("warnings") else "black")
+    order = ["night", "windows", "rec", "sun", "other", "park", "hazard", "dst", "outside"]
     fig.legend(handles=[legend[k] for k in order if k in legend], loc="outside lower center",
                ncols=4, fontsize=9)
     return fig
@@ -599,9 +638,10 @@ def survey_chart(plan: dict) -> Figure:
 
     Blocks are bars at their galactic longitude, targets in blue and
     references in orange (Okabe-Ito); slews are dashed grey lines from one
-    pointing's longitude to the next. The elevation of the dish through every
-    block is the vermillion line on the twin axis, with the site's minimum
-    elevation dotted. Time axis in the site's local zone.
+    pointing's longitude to the next. A stow (the dish parked safe from the Sun,
+    no sky position) is a pale yellow band over its time. The elevation of the
+    dish through every block is the vermillion line on the twin axis, with the
+    site's minimum elevation dotted. Time axis in the site's local zone.
     """
     blocks = _survey_blocks(plan)
     site = plan["site"]
@@ -610,7 +650,8 @@ def survey_chart(plan: dict) -> Figure:
     ax = fig.subplots()
     elev = ax.twinx()
 
-    pointed = [b for b in blocks if b.get("kind") != "slew" and b.get("l_deg") is not None]
+    pointed = [b for b in blocks
+               if b.get("kind") not in ("slew", "stow") and b.get("l_deg") is not None]
     l_all = np.array([b["l_deg"] for b in pointed], dtype=float)
     span = float(np.ptp(l_all)) if l_all.size else 0.0
     height = max(2.0, 0.04 * span)
@@ -623,8 +664,11 @@ def survey_chart(plan: dict) -> Figure:
         t1 = mdates.date2num(datetime.fromisoformat(blk["end_utc"]))
         if blk.get("kind") == "slew":
             nxt = next((b for b in blocks[k + 1:] if b.get("kind") != "slew"), None)
-            if last_l is not None and nxt is not None:
+            if last_l is not None and nxt is not None and nxt.get("l_deg") is not None:
                 ax.plot([t0, t1], [last_l, nxt["l_deg"]], color=_GREY, ls="--", lw=1.2)
+        elif blk.get("kind") == "stow":
+            ax.axvspan(t0, t1, facecolor=OKABE_ITO["yellow"], alpha=0.35, lw=0, zorder=1)
+            last_l = None  # the next slew starts from the stow, not from a sky position
         else:
             l_deg = float(blk["l_deg"])
             ax.add_patch(Rectangle((t0, l_deg - height / 2), t1 - t0, height,
@@ -669,7 +713,10 @@ def survey_chart(plan: dict) -> Figure:
         Line2D([], [], color=OKABE_ITO["vermillion"], ls=":", lw=1.2,
                label="minimum elevation"),
     ]
-    fig.legend(handles=handles, loc="outside lower center", ncols=5, fontsize=9)
+    if any(b.get("kind") == "stow" for b in blocks):
+        handles.append(Patch(facecolor=OKABE_ITO["yellow"], alpha=0.35,
+                             label="stowed, safe from the Sun"))
+    fig.legend(handles=handles, loc="outside lower center", ncols=len(handles), fontsize=9)
     return fig
 
 
@@ -683,7 +730,8 @@ def survey_sky(plan: dict) -> Figure:
     """
     blocks = _survey_blocks(plan)
     site = plan["site"]
-    pointed = [b for b in blocks if b.get("kind") != "slew" and b.get("l_deg") is not None]
+    pointed = [b for b in blocks
+               if b.get("kind") not in ("slew", "stow") and b.get("l_deg") is not None]
     lon = np.array([b["l_deg"] for b in pointed], dtype=float) % 360.0
     lat = np.array([b["b_deg"] for b in pointed], dtype=float)
     band = float(site.get("band_deg", 3.0))

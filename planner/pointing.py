@@ -6,6 +6,11 @@ declination is what ``dec_deg`` means everywhere in hiplan for a parked dish;
 it differs from the J2000/ICRS declination of the sky under the beam by the
 precession since 2000 (< 0.2 deg until 2030), well inside any small-dish beam.
 
+A declination circle crosses the meridian twice a sidereal day: at *upper*
+culmination (hour angle 0) and, 12 h later, *below the pole* (lower
+culmination, hour angle 180 deg). A transit dish that can face the pole parks
+at either; the sky it sees is the same, 12 hours apart.
+
 Angles in degrees; azimuth from north through east; hour angle positive west.
 Refraction is not modelled: these are geometric directions (at 21 cm the
 tropospheric bending is below 0.1 deg above 10 deg elevation, common practice).
@@ -31,6 +36,22 @@ class Pointing:
     dec_deg: float  # topocentric declination of date (CIRS)
     given_as: str  # "dec", "elevation", "altaz" or "hadec": how the user specified it
 
+    @property
+    def culmination(self) -> str:
+        """"upper" for the half of the sky within 6 h of the upper meridian, else "lower"."""
+        return "upper" if abs(self.ha_deg) <= 90.0 else "lower"
+
+    @property
+    def facing(self) -> str:
+        """"zenith", "north", "south" for meridian pointings, else the azimuth as text."""
+        if self.alt_deg > 89.999:
+            return "zenith"
+        if abs(self.az_deg - 180.0) < 1e-6:
+            return "south"
+        if min(self.az_deg, 360.0 - self.az_deg) < 1e-6:
+            return "north"
+        return f"azimuth {self.az_deg:.1f}"
+
     def summary(self, beamwidth_deg: float, band_deg: float) -> dict:
         """The ``pointing`` object of JSON outputs."""
         return {
@@ -40,6 +61,7 @@ class Pointing:
             "dec_deg": round(self.dec_deg, 4),
             "dec_frame": "CIRS (topocentric declination of date)",
             "given_as": self.given_as,
+            "culmination": self.culmination,
             "beamwidth_deg": round(beamwidth_deg, 3),
             "band_deg": band_deg,
         }
@@ -77,6 +99,79 @@ def on_meridian_at_dec(site: Site, dec_deg: float) -> Pointing:
     p = from_altaz(site, alt, az, given_as="dec")
     # ae2hd loses the exact input at the zenith/pole; keep the requested value.
     return Pointing(p.alt_deg, p.az_deg, 0.0, float(dec_deg), "dec")
+
+
+def below_pole_at_dec(site: Site, dec_deg: float) -> Pointing:
+    """Meridian pointing below the pole (lower culmination, HA 180) at declination ``dec_deg``.
+
+    Faces the elevated pole; elevation |dec| + |latitude| - 90 when dec has the
+    latitude's sign (negative elevations are returned as they are: below the horizon).
+    """
+    if not -90.0 <= dec_deg <= 90.0:
+        raise UserError(f"--dec: {dec_deg} is outside [-90, 90]")
+    p = from_hadec(site, 180.0, dec_deg)
+    return Pointing(p.alt_deg, p.az_deg, 180.0, float(dec_deg), "dec")
+
+
+@dataclass(frozen=True)
+class DecRange:
+    """A declination interval a meridian dish reaches at one culmination (deg, inclusive)."""
+
+    culmination: str  # "upper" | "lower"
+    lo_deg: float
+    hi_deg: float
+
+
+def _sides(site: Site) -> set[str]:
+    """Meridian sides the mount can face."""
+    dish = site.dish
+    if dish.mount == "transit" and dish.facing in ("north", "south"):
+        return {dish.facing}
+    return {"north", "south"}
+
+
+def meridian_dec_ranges(site: Site) -> list[DecRange]:
+    """Declinations reachable on the meridian, by culmination, from the site's limits.
+
+    Closed form. Northern site (latitude p >= 0; the south is mirrored): facing
+    south at elevation e the beam is at upper culmination of dec = p - 90 + e;
+    facing north at e >= p at upper culmination of dec = p + 90 - e (the pole at
+    e = p), and at e < p below the pole at dec = 90 - p + e. The elevation runs
+    from the horizon limit on that side (mask and ``elevation_min_deg``) to
+    ``elevation_max_deg``. Altaz mounts are also limited by their azimuth range
+    (checked by ``reachability_problem`` on each candidate).
+    """
+    lat = site.latitude_deg
+    sign = 1.0 if lat >= 0 else -1.0
+    dish = site.dish
+    eq_side, pole_side = ("south", "north") if lat >= 0 else ("north", "south")
+    az_of = {"south": 180.0, "north": 0.0}
+    emax = dish.elevation_max_deg
+    sides = _sides(site)
+    out = []
+    if eq_side in sides:
+        lim = float(dish.horizon_limit_deg(az_of[eq_side]))
+        ends = sorted((lat - sign * (90.0 - lim), lat - sign * (90.0 - emax)))
+        if lim <= emax:
+            out.append(DecRange("upper", *ends))
+    if pole_side in sides:
+        lim = float(dish.horizon_limit_deg(az_of[pole_side]))
+        pole_el = abs(lat)
+        lo_e = max(pole_el, lim)
+        if lo_e <= emax:  # upper culmination between the zenith and the pole
+            out.append(DecRange("upper", *sorted((lat + sign * (90.0 - emax), lat + sign * (90.0 - lo_e)))))
+        hi_e = min(pole_el, emax)
+        if lim < hi_e:  # below the pole (the pole itself belongs to the upper range)
+            out.append(DecRange("lower", *sorted((sign * (90.0 - pole_el + lim),
+                                                  sign * (90.0 - pole_el + hi_e)))))
+    merged: list[DecRange] = []
+    for r in sorted(out, key=lambda r: (r.culmination != "upper", r.lo_deg)):
+        last = merged[-1] if merged else None
+        if last and last.culmination == r.culmination and r.lo_deg <= last.hi_deg + 1e-9:
+            merged[-1] = DecRange(r.culmination, last.lo_deg, max(last.hi_deg, r.hi_deg))
+        else:
+            merged.append(r)
+    return merged
 
 
 def on_meridian_at_elevation(site: Site, elevation_deg: float, facing: str | None = None) -> Pointing:

@@ -9,8 +9,10 @@ from __future__ import annotations
 import csv
 import io
 import json
+import math
 from zoneinfo import ZoneInfo
 
+import numpy as np
 from rich import box
 from rich.console import Group
 from rich.table import Table
@@ -62,8 +64,32 @@ def passage_record(p: Passage, tz: ZoneInfo) -> dict:
     return rec
 
 
-def crossings_document(site: Site, pointing: Pointing, search: PassageSearch) -> dict:
-    """The ``hiplan crossings`` result as a JSON-ready document."""
+def approach_records(approaches, tz: ZoneInfo, hazards_only: bool = False) -> list[dict]:
+    """Sun approaches closer than the feed-safety limit as JSON-ready dicts, in time order."""
+    sel = approaches.hazard if hazards_only else approaches.within
+    out = []
+    for i in np.flatnonzero(sel):
+        out.append({
+            "closest_utc": iso_utc(approaches.closest_mjd[i]),
+            "closest_local": iso_local(approaches.closest_mjd[i], tz),
+            "sep_deg": round(float(approaches.sep_deg[i]), 3),
+            "within_from_utc": iso_utc(approaches.enter_mjd[i]),
+            "within_to_utc": iso_utc(approaches.exit_mjd[i]),
+            "within_from_local": iso_local(approaches.enter_mjd[i], tz),
+            "within_to_local": iso_local(approaches.exit_mjd[i], tz),
+            "sun_alt_max_deg": round(float(approaches.sun_alt_max_deg[i]), 2),
+            "hazard": bool(approaches.hazard[i]),
+        })
+    return out
+
+
+def crossings_document(site: Site, pointing: Pointing, search: PassageSearch,
+                       approaches=None) -> dict:
+    """The ``hiplan crossings`` result as a JSON-ready document.
+
+    ``approaches``: ``sunsafety.sun_approaches`` for the pointing over the period;
+    those closer than ``sun_hazard_deg`` are listed as ``sun_approaches``.
+    """
     tz = site.tz
     rng = lsr_range_kms(search)
     return {
@@ -74,6 +100,8 @@ def crossings_document(site: Site, pointing: Pointing, search: PassageSearch) ->
         "closest_b_abs_deg": round(search.b_min_abs_deg, 3),
         "lsr_corr_min_kms": None if rng is None else round(rng[0], 3),
         "lsr_corr_max_kms": None if rng is None else round(rng[1], 3),
+        "sun_hazard_deg": site.rules.sun_hazard_deg,
+        "sun_approaches": [] if approaches is None else approach_records(approaches, tz),
         "passages": [passage_record(p, tz) for p in search.passages],
     }
 
@@ -104,7 +132,29 @@ def _clock(mjd: float, tz: ZoneInfo) -> str:
     return mjd_to_datetime_utc(mjd).astimezone(tz).strftime("%H:%M")
 
 
-def crossings_renderable(site: Site, pointing: Pointing, search: PassageSearch):
+def sun_approach_text(site: Site, approaches) -> Text:
+    """One line (or a few) on the Sun's approaches to a parked beam: the feed-safety check."""
+    limit = site.rules.sun_hazard_deg
+    if approaches is None:
+        return Text("")
+    recs = approach_records(approaches, site.tz)
+    hazards = [r for r in recs if r["hazard"]]
+    if not hazards:
+        extra = (f" (it passes within {limit:g}° {len(recs)} times, always below the horizon)"
+                 if recs else "")
+        return Text(f"Feed safety: the Sun never comes within {limit:g}° of the beam in this "
+                    f"period{extra}.", style="green")
+    closest = min(hazards, key=lambda r: r["sep_deg"])
+    days = ", ".join(f"{r['closest_local'][5:10]} {r['closest_local'][11:16]} ({r['sep_deg']:.1f}°)"
+                     for r in hazards[:6])
+    more = f" and {len(hazards) - 6} more" if len(hazards) > 6 else ""
+    return Text(f"SUN HAZARD: the Sun passes within {limit:g}° of the beam on {len(hazards)} "
+                f"day{'s' if len(hazards) != 1 else ''} (closest {closest['sep_deg']:.1f}°): {days}{more} "
+                "local. Do not leave the dish parked here then: cover the feed or move it first.",
+                style="bold red")
+
+
+def crossings_renderable(site: Site, pointing: Pointing, search: PassageSearch, approaches=None):
     """A rich renderable: header lines and a table of passages in local time."""
     tz = site.tz
     dish = site.dish
@@ -119,10 +169,11 @@ def crossings_renderable(site: Site, pointing: Pointing, search: PassageSearch):
                 f"Sun limit {site.rules.sun_min_sep_deg:g}°\n")
     head.append(f"Period {first:%Y-%m-%d %H:%M} – {last:%Y-%m-%d %H:%M} local "
                 f"({search.end_mjd - search.start_mjd:.1f} days)")
+    feed = sun_approach_text(site, approaches)
     if not search.passages:
         note = Text(f"\nNo passage: the beam never comes within {search.band_deg:g}° of the "
                     f"galactic plane (closest |b| = {search.b_min_abs_deg:.2f}°).", style="yellow")
-        return Group(head, note)
+        return Group(head, note, feed)
 
     table = Table(box=box.SIMPLE_HEAD, header_style="bold", pad_edge=False)
     for name, justify in [("Date", "left"), ("Start", "right"), ("Peak", "right"),
@@ -158,7 +209,7 @@ def crossings_renderable(site: Site, pointing: Pointing, search: PassageSearch):
                 f"Usable longitude bins: {compact_ranges(all_bins)}\n"
                 f"LSR correction over the period: {lo:+.2f} to {hi:+.2f} km/s "
                 "(add to topocentric velocity to get LSR velocity)")
-    return Group(head, table, foot)
+    return Group(head, table, foot, feed)
 
 
 # ------------------------------------------------------------------ hiplan lsr
@@ -319,17 +370,23 @@ def tune_renderable(doc: dict):
 # ----------------------------------------------------------------- hiplan park
 
 PARK_SCHEMA = "hiplan.park/1"
-PARK_FIELDS = ("rank", "dec_deg", "elevation_deg", "az_deg", "facing", "l_ranges", "passages_per_day",
+PARK_FIELDS = ("rank", "dec_deg", "elevation_deg", "az_deg", "facing", "culmination", "sun_safe",
+               "sun_closest_deg", "sun_closest_utc", "sun_hazard_dates", "l_ranges", "passages_per_day",
                "passage_times_local", "duration_min", "sun_lost_fraction", "daylight_lost_fraction",
                "window_lost_fraction", "usable_hours", "lsr_corr_min_kms", "lsr_corr_max_kms",
                "rms_per_bin_day_k", "needed_bins_served", "score", "reason")
 
 
 def park_document(sweep, advice, want_text: str, target_minutes: float, log_source: str | None,
-                  windows_text: list[str]) -> dict:
-    """Ranked declination advice as a JSON-ready document."""
-    from .park import _facing, compact_bins
+                  windows_text: list[str], night: str | None = None) -> dict:
+    """Ranked declination advice as a JSON-ready document.
+
+    ``recommended`` lists the ranks worth recommending (Sun-safe and serving a
+    still-needed bin); empty when nothing wanted can be served safely.
+    """
+    from .park import _facing, compact_bins, recommended
     site = sweep.site
+    tz = site.tz
     rows = []
     for rank, a in enumerate(advice, start=1):
         p, c = a.pointing, a.coverage
@@ -338,7 +395,13 @@ def park_document(sweep, advice, want_text: str, target_minutes: float, log_sour
             times += " → " + ", ".join(a.times_last_day)
         rows.append({
             "rank": rank, "dec_deg": round(p.dec_deg, 3), "elevation_deg": round(p.alt_deg, 3),
-            "az_deg": round(p.az_deg, 1), "facing": _facing(p),
+            "az_deg": round(p.az_deg, 1), "facing": _facing(p), "culmination": p.culmination,
+            "sun_safe": a.sun_safe,
+            "sun_closest_deg": None if not math.isfinite(a.sun_closest_deg) else round(a.sun_closest_deg, 2),
+            "sun_closest_utc": None if not math.isfinite(a.sun_closest_mjd) else iso_utc(a.sun_closest_mjd),
+            "sun_closest_local": (None if not math.isfinite(a.sun_closest_mjd)
+                                  else iso_local(a.sun_closest_mjd, tz)),
+            "sun_hazard_dates": list(a.hazard_dates),
             "l_ranges": compact_bins(a.usable_bins, sweep.bin_width_deg),
             "l_bins": [_tidy(b * sweep.bin_width_deg) for b in a.usable_bins],
             "passages_per_day": round(a.passages_per_day, 3), "passage_times_local": times,
@@ -352,13 +415,18 @@ def park_document(sweep, advice, want_text: str, target_minutes: float, log_sour
             "rms_per_bin_day_k": None if a.rms_per_bin_day_k is None else round(a.rms_per_bin_day_k, 4),
             "needed_bins_served": a.needed_bins_served, "score": round(a.score, 3), "reason": a.reason,
         })
+    ranks = {id(a): rank for rank, a in enumerate(advice, start=1)}
     return {
         "schema": PARK_SCHEMA, "site": site.summary(),
         "period": period_summary(sweep.start_mjd, sweep.end_mjd, site.tz),
         "settings": {"band_deg": sweep.band_deg, "bin_width_deg": sweep.bin_width_deg,
                      "want": want_text or "0-360", "target_minutes": target_minutes,
-                     "log": log_source, "night_only": sweep.night_only, "windows": windows_text,
-                     "beamwidth_deg": round(site.dish.beamwidth_deg, 3)},
+                     "log": log_source, "night_only": sweep.night_only,
+                     "night": night if sweep.night_only else None,
+                     "night_sun_alt_deg": sweep.night_sun_alt_deg if sweep.night_only else None,
+                     "windows": windows_text, "beamwidth_deg": round(site.dish.beamwidth_deg, 3),
+                     "sun_hazard_deg": site.rules.sun_hazard_deg},
+        "recommended": [ranks[id(a)] for a in recommended(advice)],
         "declinations": rows,
     }
 
@@ -367,35 +435,74 @@ def _tidy(value: float):
     return int(value) if float(value).is_integer() else float(value)
 
 
+PARK_LEGEND = (
+    "Elev°: elevation on the meridian and the side the dish faces (N/S/Z = zenith); \"low\" = "
+    "below the pole, where the declination passes 12 h after its highest point. Feed: ok, or HAZARD when the Sun passes within the site's sun_hazard_deg of "
+    "the beam this period (dates below: never park there then). /day: passages a day. Min: mean passage "
+    "minutes. Sun lost: passages too near the Sun to record (data-quality rule). Use h: usable "
+    "hours in wanted and other bins over the period. K/bin/day: noise per channel per 1° bin "
+    "from one day (median). Score: wanted bins this setting alone brings to the target depth "
+    "(partial bins count their fraction)."
+)
+
+
 def park_renderable(doc: dict, top: int):
     s, st = doc["site"], doc["settings"]
     head = Text()
     head.append(s["name"], style="bold")
     head.append(f"  ({s['latitude_deg']:+.2f}°, {s['longitude_deg']:+.2f}°)  "
                 f"{doc['period']['start_local'][:10]} – {doc['period']['end_local'][:10]}\n")
+    night = st.get("night") or "horizon"
     head.append(f"Beam {st['beamwidth_deg']:.2f}°, band |b| ≤ {st['band_deg']:g}°, wanted l {st['want']}, "
                 f"target {st['target_minutes']:g} min per bin"
-                + (", night only" if st["night_only"] else "")
+                + (f", night only ({night})" if st["night_only"] else "")
                 + (f", windows: {'; '.join(st['windows'])}" if st["windows"] else "")
-                + (f", log {st['log']}" if st["log"] else ""))
+                + (f", log {st['log']}" if st["log"] else "")
+                + f", feed safety: Sun ≥ {st.get('sun_hazard_deg', s.get('sun_hazard_deg', 10)):g}° "
+                  "from the beam")
     table = Table(box=box.SIMPLE_HEAD, header_style="bold", pad_edge=False)
-    for name, just in [("#", "right"), ("Dec°", "right"), ("Elev°", "right"), ("Longitudes (usable)", "left"),
-                       ("/day", "right"), ("Starts (local)", "left"), ("Min", "right"), ("Sun lost", "right"),
+    for name, just in [("#", "right"), ("Dec°", "right"), ("Elev°", "right"), ("Feed", "left"), ("Usable l°", "left"), ("/day", "right"),
+                       ("Starts (local)", "left"), ("Min", "right"), ("Sun lost", "right"),
                        ("Use h", "right"), ("LSR km/s", "right"), ("K/bin/day", "right"), ("Score", "right")]:
         table.add_column(name, justify=just, overflow="fold")
+    from .park import date_ranges
     for r in doc["declinations"][:top]:
         lsr = ("" if r["lsr_corr_min_kms"] is None
                else f"{r['lsr_corr_min_kms']:+.0f}…{r['lsr_corr_max_kms']:+.0f}")
-        table.add_row(str(r["rank"]), f"{r['dec_deg']:+.1f}", f"{r['elevation_deg']:.1f}{r['facing'][0].upper()}",
+        feed = Text("ok") if r["sun_safe"] else Text("HAZARD", style="bold red")
+        table.add_row(str(r["rank"]), f"{r['dec_deg']:+.1f}", f"{r['elevation_deg']:.1f}{r['facing'][0].upper()}"
+                      + ("" if r["culmination"] == "upper" else " low"), feed,
                       r["l_ranges"], f"{r['passages_per_day']:.1f}", r["passage_times_local"],
                       f"{r['duration_min']:.0f}", f"{r['sun_lost_fraction']:.0%}", f"{r['usable_hours']:.1f}",
                       lsr, "" if r["rms_per_bin_day_k"] is None else f"{r['rms_per_bin_day_k']:.3f}",
-                      f"{r['score']:.1f}")
+                      f"{r['score']:.1f}", style="" if r["sun_safe"] else "dim")
+    legend = Text(PARK_LEGEND + "\n", style="dim")
     reasons = Text()
     reasons.append("Recommendation\n", style="bold")
-    for r in doc["declinations"][:min(top, 3)]:
-        reasons.append(f"{r['rank']}. {r['reason']}\n")
-    return Group(head, table, reasons)
+    by_rank = {r["rank"]: r for r in doc["declinations"]}
+    picks = [by_rank[k] for k in doc.get("recommended", [])][:3]
+    if picks:
+        for r in picks:
+            reasons.append(f"{r['rank']}. {r['reason']}\n")
+    else:
+        reasons.append("None: no Sun-safe setting serves a wanted bin that still needs time in this "
+                       "period" + (" at night" if st["night_only"] else "") + ". Try another period, "
+                       "wider --want, or without --night-only / --windows. The first settings:\n",
+                       style="yellow")
+        for r in doc["declinations"][:min(top, 3)]:
+            reasons.append(f"  {r['reason']}\n")
+    unsafe = [r for r in doc["declinations"] if not r["sun_safe"]]
+    if unsafe:
+        reasons.append(f"SUN HAZARD: {len(unsafe)} setting{'s' if len(unsafe) != 1 else ''} this period "
+                       "put the Sun on the feed; never park there on these dates:\n", style="bold red")
+        for r in unsafe[:top]:
+            side = "" if r["culmination"] == "upper" else " below the pole"
+            reasons.append(f"  Dec {r['dec_deg']:+.1f}° (elevation {r['elevation_deg']:.1f}° "
+                           f"{r['facing']}{side}): Sun {r['sun_closest_deg']:.1f}° from the beam, "
+                           f"{date_ranges(tuple(r['sun_hazard_dates']))}\n", style="red")
+        if len(unsafe) > top:
+            reasons.append(f"  … and {len(unsafe) - top} more (see --format json)\n", style="red")
+    return Group(head, table, legend, reasons)
 
 
 # ---------------------------------------------------------------- hiplan month
@@ -412,8 +519,11 @@ def month_renderable(doc: dict):
     last_day = doc["days"][-1]["date"] if doc["days"] else doc["period"]["end_local"][:10]
     head.append(f"  {doc['period']['start_local'][:10]} – {last_day}  "
                 f"(target {st['target_minutes']:g} min per bin"
-                + (", night only" if st["night_only"] else "")
+                + (f", night only ({st.get('night') or 'horizon'})" if st["night_only"] else "")
                 + (f"; windows: {'; '.join(st['windows'])}" if st["windows"] else "") + ")")
+    head.append(f"\nFeed safety: no setting or move brings the Sun within "
+                f"{st.get('sun_hazard_deg', s.get('sun_hazard_deg', 10)):g}° of the beam"
+                + (" (overridden: --allow-sun-hazard)" if st.get("allow_sun_hazard") else "") + ".")
     table = Table(box=box.SIMPLE_HEAD, header_style="bold", pad_edge=False)
     for name, just in [("Date", "left"), ("Dish", "left"), ("Move", "left"), ("Recordings (local)", "left"),
                        ("New at target", "left"), ("Centre MHz", "right"), ("Skipped", "left")]:
@@ -424,7 +534,8 @@ def month_renderable(doc: dict):
         if park is None:
             dish = "not parked"
         else:
-            dish = f"Dec {park['dec_deg']:+.1f} = el {park['alt_deg']:.1f}° {park['facing']}"
+            low = " (below pole)" if park.get("culmination") == "lower" else ""
+            dish = f"Dec {park['dec_deg']:+.1f} = el {park['alt_deg']:.1f}° {park['facing']}{low}"
             before = (day["recordings"][0].get("dish") if day["recordings"] else None) or previous
             if park["move"] and before is not None and before["dec_deg"] != park["dec_deg"]:
                 dish = f"Dec {before['dec_deg']:+.1f} → " + dish
@@ -436,9 +547,14 @@ def month_renderable(doc: dict):
         new = compact_ranges([b for r in day["recordings"] for b in r["new_bins"]])
         tune = f"{day['tuning']['centre_mhz']:.3f}" if day["tuning"] else ""
         skipped = ", ".join(f"{_hhmm(k['start_local'])} {k['reason']}" for k in day["skipped"])
+        hazards = day.get("sun_hazards") or []
+        if hazards:
+            recs = "\n".join([f"SUN HAZARD: {h['action']}" for h in hazards] + ([recs] if recs else []))
         table.add_row(day["date"][5:], dish, move, recs or "—", "" if new == "—" else new, tune, skipped,
-                      style="bold" if park and park["move"] else "")
+                      style="bold red" if hazards else ("bold" if park and park["move"] else ""))
     foot = Text()
+    for warning in doc.get("warnings") or []:
+        foot.append(warning + "\n", style="bold red")
     foot.append(f"Wanted bins at target depth: {summ['done_before']} before → {summ['done_after']} after "
                 f"of {summ['wanted_bins']}, with {summ['moves']} moves.\n", style="bold")
     for gap in summ["gaps"]:

@@ -6,7 +6,7 @@ A site file has four tables (all angles in degrees, longitude east-positive):
 ``[dish]``      diameter_m, beamwidth_deg (optional), mount, elevation limits,
                 horizon mask, and for ``altaz`` mounts azimuth limits and slew rates
 ``[receiver]``  bandwidth_mhz, channels, tsys_k
-``[rules]``     sun_min_sep_deg, moon_min_sep_deg, band_deg, bin_width_deg
+``[rules]``     sun_min_sep_deg, sun_hazard_deg, moon_min_sep_deg, band_deg, bin_width_deg
 
 plus an optional ``[pointing]`` (alt_deg/az_deg or dec_deg) used when a command
 is given no pointing. The full field list is ``FIELDS`` below and docs/site-files.md.
@@ -14,6 +14,11 @@ is given no pointing. The full field list is ``FIELDS`` below and docs/site-file
 When ``beamwidth_deg`` is absent the half-power beamwidth is taken as
 70 lambda/D degrees (about 1.2 lambda/D radians, a typical edge-tapered feed;
 NRAO "Essential Radio Astronomy", reflector antennas chapter).
+
+Two Sun rules, deliberately separate: ``sun_min_sep_deg`` is the data-quality
+rule (solar emission in the sidelobes spoils a recording), ``sun_hazard_deg``
+the feed-safety rule (the closest the Sun may come to the axis of a parked or
+moving dish before the reflector focuses its heat on the feed).
 """
 from __future__ import annotations
 
@@ -81,11 +86,18 @@ class Receiver:
         return self.bandwidth_mhz * 1e3 / self.channels
 
 
+# Feed safety: a dish focuses sunlight toward its feed when the Sun is within a few
+# degrees of its axis; 10 deg between the Sun and the axis is a conservative default.
+# Common practice, no published source.
+DEFAULT_SUN_HAZARD_DEG = 10.0
+
+
 @dataclass(frozen=True)
 class Rules:
-    """Survey rules: minimum Sun/Moon separation, |b| band and bin width (deg)."""
+    """Survey rules (deg): Sun data-quality and feed-safety limits, Moon limit, |b| band, bin width."""
 
     sun_min_sep_deg: float = 15.0
+    sun_hazard_deg: float = DEFAULT_SUN_HAZARD_DEG
     moon_min_sep_deg: float = 0.0
     band_deg: float = 3.0
     bin_width_deg: float = 1.0
@@ -124,6 +136,7 @@ class Site:
             "elevation_min_deg": self.dish.elevation_min_deg,
             "elevation_max_deg": self.dish.elevation_max_deg,
             "sun_min_sep_deg": self.rules.sun_min_sep_deg,
+            "sun_hazard_deg": self.rules.sun_hazard_deg,
             "band_deg": self.rules.band_deg,
         }
 
@@ -170,6 +183,7 @@ FIELDS: dict[str, dict[str, _Spec]] = {
     },
     "rules": {
         "sun_min_sep_deg": _Spec(_NUM, False, 0, 180, default=15.0),
+        "sun_hazard_deg": _Spec(_NUM, False, 0, 45, lo_open=True, default=DEFAULT_SUN_HAZARD_DEG),
         "moon_min_sep_deg": _Spec(_NUM, False, 0, 180, default=0.0),
         "band_deg": _Spec(_NUM, False, 0, 90, lo_open=True, default=3.0),
         "bin_width_deg": _Spec(_NUM, False, 0, 30, lo_open=True, default=1.0),

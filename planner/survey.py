@@ -6,10 +6,13 @@ the first sample at or after its end must pass):
 
 * elevation >= max(elevation_min_deg, horizon mask at that azimuth) and
   <= elevation_max_deg (site file);
-* separation from the Sun >= the Sun rule, from the Moon >= the Moon rule
-  (when > 0);
-* with ``night_only``, the Sun's geometric centre below the horizon
-  (the same "night" as drift plans);
+* separation from the Sun >= max(Sun rule + ``ANGLE_MARGIN_DEG``, feed-safety
+  rule ``sun_hazard_deg`` + ``slew_sun_margin_deg``): feed safety is never
+  weaker than the data rule, and a block's start and end positions must be
+  reachable by Sun-safe slews (below); from the Moon >= the Moon rule (when > 0);
+* with ``night_only``, the Sun's geometric centre below ``night_sun_alt_deg``
+  (0 = the horizon, or a twilight limit, ``avoidance.NIGHT_SUN_ALTITUDE_DEG``;
+  the same "night" as drift plans);
 * inside one operator availability window (``planner.windows``), slews included;
 * the drive azimuth stays inside the cable-wrap range for the whole track
   (``planner.slew``).
@@ -55,6 +58,35 @@ possibility. The dispatcher therefore never places a block that breaks a
 constraint, never overlaps blocks, and fits every slew in the gap before its
 block; it does not guarantee an optimum.
 
+Feed safety (the Sun never within ``sun_hazard_deg`` of the dish axis, moving,
+parked or idle; ``planner.sunsafety``):
+
+* Slews: a wrap choice whose path (both axes at once at their rates, the way
+  the drive azimuth goes) passes within hazard + ``slew_sun_margin_deg`` of the
+  Sun is illegal (``slew.choose_drive_az``); with no legal choice the unit is
+  not startable then. The Sun is taken at one grid sample (the block start for
+  moves to a block: the slew ends there) and the margin covers path sampling
+  (PATH_STEP_DEG / 2), the fast Sun's 0.01 deg and the Sun's drift over the
+  longest slew or one grid step, whichever is longer.
+* Resting: between blocks the dish sits still at its last position (at its
+  start position before the first slew, and after the last block). Every grid
+  sample from the one at or before it stops through the one at or after the
+  next slew leaves must keep the Sun beyond hazard + ``rest_sun_margin_deg``
+  (0.01 deg plus the drift over half a step: every instant is within half a
+  step of a checked sample). The Sun is followed one day past the period's end,
+  since the dish stays where the plan leaves it. Where the dish would rest
+  through a closer approach, it goes to ``sunsafety.sun_safe_stow`` first: a
+  ``slew`` block (named ``STOW_NAME``; a wrap choice whose path is Sun-safe,
+  leaving as soon as the dish stops, or at a later grid sample before the Sun
+  arrives if the path is blocked at first) and a ``stow`` block from its
+  arrival until the next slew leaves (the end of the period after the last
+  one); later slews start from the stow. Stow slews leave when the dish stops,
+  so one may run past the end of an availability window: safety first.
+* A unit whose end position could not be left for the stow in time (the Sun
+  blocking every path) is not chosen; a reference must be reachable without
+  the dish resting near the Sun between target and reference. If the start
+  position itself is trapped, the plan is refused with a ``UserError``.
+
 Each target block then gets its LSR-correction range (``doppler``, one-minute
 samples over the block) and receiver tuning (``spectral.tuning_advice`` with the
 disc-HI envelope of ``galaxy`` at the target's l, b); a reference block keeps
@@ -68,16 +100,17 @@ from dataclasses import dataclass, field, replace
 
 import numpy as np
 
-from .avoidance import moon_direction, sun_altitude_deg, sun_direction
+from .avoidance import DEFAULT_NIGHT, NIGHT_SUN_ALTITUDE_DEG, moon_direction, sun_direction
 from .doppler import velocity_corrections
 from .earth import earth_state, unit_vectors
 from .errors import UserError
 from .galactic import galactic_to_icrs_deg
 from .galaxy import RotationModel, hi_velocity_envelope
 from .obslog import LogEntry, coverage_minutes
-from .site import Site
+from .site import DEFAULT_SUN_HAZARD_DEG, Site
 from .skytrack import icrs_to_altaz_deg
 from .slew import SlewModel, choose_drive_az, drive_options_deg, slew_model
+from .sunsafety import PATH_STEP_DEG, SUN_DRIFT_DEG_PER_MIN, sun_safe_stow
 from .spectral import TuningAdvice, tuning_advice
 from .targets import ReferenceSpec, Target, position_name, reference_positions
 from .timebase import SECONDS_PER_DAY, iso_local, iso_utc
@@ -91,8 +124,13 @@ REFERENCE_MAX_WAIT_MIN = 10.0
 # Positions x samples held in memory (alt, az and separations as float32, masks, run
 # lengths, plus float64 temporaries): about 50 bytes each at the peak, so about 1 GB.
 MAX_POSITION_SAMPLES = 20_000_000
-# Sun's geometric centre below the horizon counts as night, as in drift plans.
-NIGHT_SUN_ALT_DEG = 0.0
+# The fast Sun (``avoidance``) and beam directions agree with astropy's apparent
+# topocentric ones within 0.01 deg (planner.sunsafety, tests/test_sunsafety.py).
+FAST_SUN_DEG = 0.01
+# How far the resting dish's Sun check may look for a clear path to the stow after
+# it stops (grid samples): four hours at one-minute steps; our choice.
+STOW_SEARCH_SAMPLES = 240
+STOW_NAME = "stow"
 _EPS_DAYS = 1e-3 / SECONDS_PER_DAY  # 1 ms: float MJD round-off guard
 MINUTES_PER_DAY = 1440.0
 
@@ -116,6 +154,9 @@ class SurveySettings:
     sun_min_sep_deg: float
     moon_min_sep_deg: float = 0.0
     night_only: bool = False
+    night_sun_alt_deg: float = NIGHT_SUN_ALTITUDE_DEG[DEFAULT_NIGHT]  # with night_only
+    night: str = DEFAULT_NIGHT  # the name of that limit, for the document
+    sun_hazard_deg: float = DEFAULT_SUN_HAZARD_DEG  # feed safety (site rule)
     availability: Availability = ALWAYS
     reference: ReferenceSpec | None = None
     reference_minutes: float | None = None  # None: as long as the target's integration
@@ -141,6 +182,10 @@ class Visibility:
     night: np.ndarray  # (N,) bool, all True unless night_only
     window_start_mjd: np.ndarray  # (N,) start of the window holding the sample, else +inf
     window_end_mjd: np.ndarray  # (N,) its end, else -inf
+    # The Sun's alt/az (float64) on the grid continued one day past its end, (N + E,):
+    # a dish left at rest after the plan stays there.
+    sun_alt_deg: np.ndarray
+    sun_az_deg: np.ndarray
 
     @property
     def ok(self) -> np.ndarray:
@@ -149,17 +194,21 @@ class Visibility:
 
 @dataclass(frozen=True)
 class Block:
-    """One entry of the plan: a target or reference integration, or a slew to one."""
+    """One entry of the plan: a target or reference integration, a slew, or a Sun-safe stow.
 
-    kind: str  # target | reference | slew
+    A stow (and the slew to it) is a fixed alt/az, not a sky position: its l, b,
+    RA and Dec are None and its target index is -1.
+    """
+
+    kind: str  # target | reference | slew | stow
     name: str
-    target: int  # index of the target this block serves
+    target: int  # index of the target this block serves, -1 for stows
     start_mjd: float
     end_mjd: float
-    l_deg: float
-    b_deg: float
-    ra_deg: float
-    dec_deg: float
+    l_deg: float | None
+    b_deg: float | None
+    ra_deg: float | None
+    dec_deg: float | None
     alt_start_deg: float
     alt_end_deg: float
     az_start_deg: float  # sky azimuth, [0, 360)
@@ -251,6 +300,28 @@ def _window_edges(mjd: np.ndarray, intervals: np.ndarray) -> tuple[np.ndarray, n
     return (np.where(inside, spans[safe, 0], np.inf), np.where(inside, spans[safe, 1], -np.inf))
 
 
+def slew_sun_margin_deg(model: SlewModel, step_s: float) -> float:
+    """Clearance (deg) added to ``sun_hazard_deg`` for slew paths (module docstring).
+
+    Path sampling (PATH_STEP_DEG / 2), the fast Sun (FAST_SUN_DEG), and the Sun's
+    drift relative to alt/az (SUN_DRIFT_DEG_PER_MIN) over the longest time between
+    the sample the Sun is taken at and any instant of the slew: the longest slew
+    (moves to a block, Sun at the block start) or one step (moves to the stow,
+    Sun at the sample after they leave), whichever is longer.
+    """
+    return (PATH_STEP_DEG / 2.0 + FAST_SUN_DEG
+            + SUN_DRIFT_DEG_PER_MIN * max(model.max_slew_s, step_s) / 60.0)
+
+
+def rest_sun_margin_deg(step_s: float) -> float:
+    """Clearance (deg) added to ``sun_hazard_deg`` for a resting dish checked at grid samples.
+
+    Every instant is within half a step of a checked sample, over which the Sun
+    moves at most SUN_DRIFT_DEG_PER_MIN relative to a fixed alt/az; plus FAST_SUN_DEG.
+    """
+    return FAST_SUN_DEG + SUN_DRIFT_DEG_PER_MIN * step_s / 120.0
+
+
 def compute_visibility(site: Site, ra_deg, dec_deg, settings: SurveySettings) -> Visibility:
     """Positions (ICRS RA/Dec, deg) against every constraint on the period's time grid."""
     mjd = _grid_mjd(settings.start_mjd, settings.end_mjd, settings.step_s)
@@ -269,18 +340,30 @@ def compute_visibility(site: Site, ra_deg, dec_deg, settings: SurveySettings) ->
         alt[p], az[p] = icrs_to_altaz_deg(site, vec[p], state)
     sun = sun_direction(state)
     sun_sep = _separations_deg(vec, sun)
+    # The Sun's alt/az on the grid and one day past it, for slews and the resting dish.
+    step_d = settings.step_s / SECONDS_PER_DAY
+    tail = mjd[-1] + step_d * np.arange(1, int(math.ceil(1.0 / step_d)) + 1)
+    tail_state = earth_state(tail)
+    sun_alt, sun_az = icrs_to_altaz_deg(site, sun, state)
+    tail_alt, tail_az = icrs_to_altaz_deg(site, sun_direction(tail_state), tail_state)
+    sun_alt = np.concatenate([sun_alt, tail_alt])
+    sun_az = np.concatenate([sun_az, tail_az])
     moon_sep = _separations_deg(vec, moon_direction(site, state))
     dish = site.dish
     limit = dish.horizon_limit_deg(az).astype(np.float32)
     margin = ANGLE_MARGIN_DEG
     elevation_ok = (alt >= limit + margin) & (alt <= dish.elevation_max_deg - margin)
-    sun_ok = sun_sep >= settings.sun_min_sep_deg + margin
+    # Feed safety is never weaker than the data rule, and a block's start and end must
+    # be reachable by a Sun-safe slew, so the hazard keeps the slew clearance.
+    sun_limit = max(settings.sun_min_sep_deg + margin, settings.sun_hazard_deg
+                    + slew_sun_margin_deg(slew_model(site), settings.step_s))
+    sun_ok = sun_sep >= sun_limit
     if settings.moon_min_sep_deg > 0:
         moon_ok = moon_sep >= settings.moon_min_sep_deg + margin
     else:
         moon_ok = np.ones_like(sun_ok)
     if settings.night_only:
-        night = sun_altitude_deg(site, state) < NIGHT_SUN_ALT_DEG
+        night = sun_alt[:mjd.size] < settings.night_sun_alt_deg
     else:
         night = np.ones(mjd.size, dtype=bool)
     intervals = window_intervals_mjd(settings.availability, settings.start_mjd,
@@ -289,7 +372,7 @@ def compute_visibility(site: Site, ra_deg, dec_deg, settings: SurveySettings) ->
     return Visibility(mjd_utc=mjd, alt_deg=alt, az_deg=az, sun_sep_deg=sun_sep,
                       moon_sep_deg=moon_sep, elevation_ok=elevation_ok, sun_ok=sun_ok,
                       moon_ok=moon_ok, night=night, window_start_mjd=w_start,
-                      window_end_mjd=w_end)
+                      window_end_mjd=w_end, sun_alt_deg=sun_alt, sun_az_deg=sun_az)
 
 
 def _separations_deg(vec: np.ndarray, body: np.ndarray) -> np.ndarray:
@@ -342,6 +425,28 @@ def _first_usable(table: np.ndarray, rows: np.ndarray, k: np.ndarray) -> np.ndar
     return out
 
 
+@dataclass(frozen=True)
+class _Rest:
+    """The dish at rest at (drive azimuth, elevation) since ``since`` (MJD).
+
+    ``danger_k``: the first sample of the continued grid, from the one at or before
+    ``since``, at which the Sun is within hazard + rest margin of it (past the grid:
+    never). ``route``: how to reach the stow when it must, (leave MJD, drive
+    azimuth at the stow, slew seconds), or None.
+    """
+
+    az: float
+    el: float
+    since: float
+    danger_k: int
+    needs_stow: bool
+    route: tuple[float, float, float] | None
+
+    @property
+    def trapped(self) -> bool:
+        return self.needs_stow and self.route is None
+
+
 class _Dispatcher:
     """The greedy dispatcher of the module docstring: state of one scheduling run."""
 
@@ -376,6 +481,13 @@ class _Dispatcher:
         self.startable_after = np.cumsum(self.can_start[:, ::-1], axis=1,
                                          dtype=np.int32)[:, ::-1]
         self.remaining = remaining.astype(int).copy()
+        # Feed safety: the Sun on the grid continued one day (east, north, up unit vectors).
+        hazard = settings.sun_hazard_deg
+        self.slew_clear_deg = hazard + slew_sun_margin_deg(self.model, self.step_s)
+        self.rest_cos = math.cos(math.radians(hazard + rest_sun_margin_deg(self.step_s)))
+        self.sun_enu = unit_vectors(90.0 - vis.sun_az_deg, vis.sun_alt_deg)
+        self.n_ext = vis.sun_alt_deg.size
+        self.stow = sun_safe_stow(site)
         self.ref_failed = np.zeros(m, dtype=bool)
         self.unit_ok_ever = np.zeros(m, dtype=bool)
         self.repeat_no = np.zeros(m, dtype=int)
@@ -444,8 +556,10 @@ class _Dispatcher:
             if a.size == 0:
                 break
             alt0, az0, lo, hi, _, _ = self._track(rows[a], k[a], need[a], minutes[a])
-            drive[a], slew_s[a] = choose_drive_az(self.model, from_az[a], from_el[a], az0, alt0,
-                                                  lo, hi)
+            drive[a], slew_s[a] = choose_drive_az(
+                self.model, from_az[a], from_el[a], az0, alt0, lo, hi,
+                sun_alt_deg=vis.sun_alt_deg[k[a]], sun_az_deg=vis.sun_az_deg[k[a]],
+                sun_clear_deg=self.slew_clear_deg)
             free = np.maximum(free_mjd[a], vis.window_start_mjd[k[a]])
             arrival = free + slew_s[a] / SECONDS_PER_DAY
             good = arrival <= vis.mjd_utc[k[a]] + _EPS_DAYS
@@ -457,6 +571,102 @@ class _Dispatcher:
             k[late] = next_usable(late, np.maximum(after.astype(np.int64), k[late] + 1))
             alive[late] = k[late] < self.n
         return k, drive, slew_s, on_time & alive
+
+    # -- feed safety
+
+    def _ceil_k(self, mjd_utc: float) -> int:
+        """Index of the first grid sample at or after ``mjd_utc`` (1 ms round-off guard)."""
+        return int(math.ceil((mjd_utc - self.vis.mjd_utc[0]) / self.step_d - 1e-6))
+
+    def _floor_k(self, mjd_utc: float) -> int:
+        return max(0, int(math.floor((mjd_utc - self.vis.mjd_utc[0]) / self.step_d + 1e-6)))
+
+    def _rest_clear(self, drive_az, el, since, until) -> np.ndarray:
+        """(C,) True where a dish resting at (drive az, el) from ``since`` to ``until``
+        keeps the Sun beyond hazard + rest margin at every sample from the one at or
+        before ``since`` to the one at or after ``until`` (all (C,) arrays)."""
+        t0 = self.vis.mjd_utc[0]
+        k0 = np.maximum(np.floor((since - t0) / self.step_d + 1e-6), 0).astype(np.int64)
+        k1 = np.ceil((until - t0) / self.step_d - 1e-6).astype(np.int64)
+        k1 = np.clip(k1, k0, self.n_ext - 1)
+        steps = np.arange(int((k1 - k0).max()) + 1)
+        idx = np.minimum(k0[:, None] + steps, self.n_ext - 1)
+        beam = unit_vectors(90.0 - np.asarray(drive_az, dtype=float), np.asarray(el, dtype=float))
+        near = np.einsum("cwi,ci->cw", self.sun_enu[idx], beam) > self.rest_cos
+        return ~(near & (steps[None, :] <= (k1 - k0)[:, None])).any(axis=1)
+
+    def _rest(self, drive_az: float, el: float, since: float) -> _Rest:
+        """The dish coming to rest: when the Sun would reach it and, if so, its way to the stow."""
+        k0 = self._floor_k(since)
+        beam = unit_vectors(90.0 - drive_az, el)
+        near = np.flatnonzero(self.sun_enu[k0:] @ beam > self.rest_cos)
+        if near.size == 0:
+            return _Rest(drive_az, el, since, self.n_ext, False, None)
+        danger = k0 + int(near[0])
+        return _Rest(drive_az, el, since, danger, True,
+                     self._stow_route(drive_az, el, since, danger))
+
+    def _stow_route(self, drive_az: float, el: float, since: float, danger_k: int):
+        """(leave MJD, drive azimuth, slew s) of a Sun-safe move to the stow, or None.
+
+        Leaves at ``since`` (the Sun taken at the next sample) if a wrap choice's path
+        is clear; else at the first later grid sample before ``danger_k`` (and within
+        STOW_SEARCH_SAMPLES) at which one is.
+        """
+        vis, stow = self.vis, self.stow
+        k_first = min(self._ceil_k(since), self.n_ext - 1)
+        later = np.arange(k_first + 1, min(danger_k, k_first + 1 + STOW_SEARCH_SAMPLES,
+                                           self.n_ext))
+        for ks, at_once in ((np.array([k_first]), True), (later, False)):
+            if ks.size == 0:
+                continue
+            drive, slew_s = choose_drive_az(self.model, drive_az, el, stow.az_deg, stow.alt_deg,
+                                            sun_alt_deg=vis.sun_alt_deg[ks],
+                                            sun_az_deg=vis.sun_az_deg[ks],
+                                            sun_clear_deg=self.slew_clear_deg)
+            ok = np.flatnonzero(np.isfinite(slew_s))
+            if ok.size:
+                j = int(ok[0])
+                leave = since if at_once else float(vis.mjd_utc[0] + self.step_d * ks[j])
+                return leave, float(drive[j]), float(slew_s[j])
+        return None
+
+    def _stow(self, blocks: list[Block], rest: _Rest, t: float):
+        """Send the resting dish to the stow: append the slew and an open stow block.
+
+        Returns the new free time, position, rest and the stow block's index.
+        """
+        leave, drive, slew_s = rest.route
+        arrive = leave + slew_s / SECONDS_PER_DAY
+        alt, az = float(self.stow.alt_deg), float(self.stow.az_deg) % 360.0
+        nowhere = dict(l_deg=None, b_deg=None, ra_deg=None, dec_deg=None)
+        if slew_s > 0:
+            blocks.append(Block(
+                kind="slew", name=STOW_NAME, target=-1, start_mjd=leave, end_mjd=arrive,
+                **nowhere, alt_start_deg=rest.el, alt_end_deg=alt,
+                az_start_deg=rest.az % 360.0, az_end_deg=az, drive_az_start_deg=rest.az,
+                drive_az_end_deg=drive))
+        blocks.append(Block(
+            kind="stow", name=STOW_NAME, target=-1, start_mjd=arrive, end_mjd=arrive, **nowhere,
+            alt_start_deg=alt, alt_end_deg=alt, az_start_deg=az, az_end_deg=az,
+            drive_az_start_deg=drive, drive_az_end_deg=drive))
+        after = self._rest(drive, alt, arrive)
+        if after.needs_stow:  # sun_safe_stow keeps > 45 deg; only an odd site gets here
+            raise UserError(f"site: the Sun comes within {self.settings.sun_hazard_deg:g}° of "
+                            f"the stow position (elevation {alt:.1f}°, azimuth {az:.1f}°); "
+                            "lower sun_hazard_deg")
+        return max(t, arrive), drive, alt, after, len(blocks) - 1
+
+    def _close_stow(self, blocks: list[Block], i: int, end_mjd: float) -> None:
+        """End stow block i at ``end_mjd``, with the Sun's least distance over it."""
+        b = blocks[i]
+        end_mjd = max(end_mjd, b.start_mjd)
+        k0 = self._floor_k(b.start_mjd)
+        k1 = max(k0, min(self._ceil_k(end_mjd), self.n_ext - 1))
+        beam = unit_vectors(90.0 - b.drive_az_start_deg, b.alt_start_deg)
+        cos_max = float(np.max(self.sun_enu[k0:k1 + 1] @ beam))
+        blocks[i] = replace(b, end_mjd=end_mjd,
+                            sun_sep_min_deg=math.degrees(math.acos(min(1.0, max(-1.0, cos_max)))))
 
     # -- candidate units
 
@@ -513,6 +723,12 @@ class _Dispatcher:
         # Switching wants the reference soon after the target: limit the wait on arrival.
         rok &= vis.mjd_utc[rkk] <= t_end + rslew / SECONDS_PER_DAY + self.ref_wait * self.step_d \
             + _EPS_DAYS
+        # The dish rests at the target's end position until the reference slew leaves.
+        waits = np.flatnonzero(rok)
+        if waits.size:
+            leave = vis.mjd_utc[rkk[waits]] - rslew[waits] / SECONDS_PER_DAY
+            rok[waits] = self._rest_clear(end_drive[pair_c[waits]], alt_end[pair_c[waits]],
+                                          t_end[waits], leave)
         ref_end = np.where(rok, vis.mjd_utc[rkk] + r_min / MINUTES_PER_DAY, np.inf)
         # Per candidate: the option that ends first; ties keep the preference order.
         order = np.lexsort((pair_j, ref_end, pair_c))
@@ -549,14 +765,26 @@ class _Dispatcher:
         mjd = vis.mjd_utc
         blocks: list[Block] = []
         t, pos_az, pos_el = float(mjd[0]), start_az, start_el
+        rest = self._rest(pos_az, pos_el, t)
+        if rest.trapped:
+            raise UserError(
+                f"site [pointing]: the Sun comes within {self.settings.sun_hazard_deg:g}° of "
+                f"the dish's start position (elevation {pos_el:.1f}°, azimuth "
+                f"{pos_az % 360.0:.1f}°) on {iso_utc(float(mjd[min(rest.danger_k, self.n - 1)]))} "
+                "and no Sun-safe path to the stow position is clear before then; stow the dish "
+                "or start the plan at another time")
+        stow_at: int | None = None  # index of the open stow block
         max_slew_d = self.model.max_slew_s / SECONDS_PER_DAY
         while True:
             active = np.flatnonzero(self.remaining > 0)
             if active.size == 0:
                 break
-            k_now = int(math.ceil((t - mjd[0]) / self.step_d - 1e-6))
+            k_now = self._ceil_k(t)
             if k_now >= self.n:
                 break
+            if k_now >= rest.danger_k:  # any slew from here leaves too late: stow first
+                t, pos_az, pos_el, rest, stow_at = self._stow(blocks, rest, t)
+                continue
             first = self.next_start[active, k_now]
             possible = first < self.n
             if not possible.any():
@@ -570,13 +798,48 @@ class _Dispatcher:
             u = self._units(cand, first[pick].astype(np.int64), t, pos_az, pos_el)
             self.unit_ok_ever[cand[u["ok"]]] = True
             score = self._scores(u, t)
-            if not np.isfinite(score).any():
+            chosen, after = self._choose(u, score, t, rest)
+            if chosen is None:
                 t = float(mjd[k_now]) + self.step_d
                 continue
+            if after is None:  # the dish would rest here through a close approach
+                t, pos_az, pos_el, rest, stow_at = self._stow(blocks, rest, t)
+                continue
+            if stow_at is not None:
+                self._close_stow(blocks, stow_at, self._departure(u, chosen))
+                stow_at = None
+            t, pos_az, pos_el = self._commit(u, chosen, t, pos_az, pos_el, blocks)
+            rest = after
+        if rest.danger_k < self.n_ext and stow_at is None:
+            t, pos_az, pos_el, rest, stow_at = self._stow(blocks, rest, t)
+        if stow_at is not None:
+            self._close_stow(blocks, stow_at, max(self.settings.end_mjd, blocks[stow_at].start_mjd))
+        return blocks
+
+    def _choose(self, u: dict, score: np.ndarray, t: float, rest: _Rest):
+        """(unit index, rest after it) to commit; (None, None) when none is feasible.
+
+        (i, None): the best unit leaves after the Sun reaches the resting dish, so
+        the dish must stow first. Units whose end position is trapped (the Sun would
+        reach it before any path to the stow clears) are dropped.
+        """
+        score = score.copy()
+        while np.isfinite(score).any():
             best = int(np.argmax(score))
             chosen = self._fill_gap(u, score, best, t)
-            t, pos_az, pos_el = self._commit(u, chosen, t, pos_az, pos_el, blocks)
-        return blocks
+            if self._ceil_k(self._departure(u, chosen)) >= rest.danger_k:
+                return chosen, None
+            end_az, end_el = self._unit_end_position(u, np.array([chosen]))
+            after = self._rest(float(end_az[0]), float(end_el[0]),
+                               float(u["unit_end_mjd"][chosen]))
+            if not after.trapped:
+                return chosen, after
+            score[chosen] = -np.inf
+        return None, None
+
+    def _departure(self, u: dict, i: int) -> float:
+        """When the first slew of unit i leaves (its block start if there is no slew)."""
+        return float(self.vis.mjd_utc[int(u["k"][i])]) - float(u["slew_s"][i]) / SECONDS_PER_DAY
 
     def _fill_gap(self, u: dict, score: np.ndarray, best: int, t: float) -> int:
         """Another unit to do first when the best one must wait and the wait is long enough."""
@@ -595,7 +858,10 @@ class _Dispatcher:
         alt0, az0, lo, hi, _, _ = self._track(np.array([c_b]), np.array([k_b]),
                                               self.need[[c_b]], self.minutes[[c_b]])
         end_az, end_el = self._unit_end_position(u, others)
-        _, move_s = choose_drive_az(self.model, end_az, end_el, az0[0], alt0[0], lo[0], hi[0])
+        _, move_s = choose_drive_az(self.model, end_az, end_el, az0[0], alt0[0], lo[0], hi[0],
+                                    sun_alt_deg=vis.sun_alt_deg[k_b],
+                                    sun_az_deg=vis.sun_az_deg[k_b],
+                                    sun_clear_deg=self.slew_clear_deg)
         free = np.maximum(u["unit_end_mjd"][others], vis.window_start_mjd[k_b])
         fits = free + move_s / SECONDS_PER_DAY <= vis.mjd_utc[k_b] + _EPS_DAYS
         if not fits.any():
@@ -784,7 +1050,7 @@ def annotate_blocks(site: Site, targets, blocks: list[Block], settings: SurveySe
     LSR corrections are sampled each minute through the block (end included), all
     blocks in one ``velocity_corrections`` call.
     """
-    observed = [i for i, b in enumerate(blocks) if b.kind != "slew"]
+    observed = [i for i, b in enumerate(blocks) if b.kind in ("target", "reference")]
     if not observed:
         return list(blocks)
     mjd_parts, ra_parts, dec_parts, counts = [], [], [], []
@@ -862,8 +1128,8 @@ def block_record(b: Block, tz) -> dict:
         "start_utc": iso_utc(b.start_mjd), "end_utc": iso_utc(b.end_mjd),
         "start_local": iso_local(b.start_mjd, tz), "end_local": iso_local(b.end_mjd, tz),
         "minutes": round(b.minutes, 3),
-        "l_deg": round(b.l_deg, 4), "b_deg": round(b.b_deg, 4),
-        "ra_deg": round(b.ra_deg, 4), "dec_deg": round(b.dec_deg, 4),
+        "l_deg": _r(b.l_deg, 4), "b_deg": _r(b.b_deg, 4),
+        "ra_deg": _r(b.ra_deg, 4), "dec_deg": _r(b.dec_deg, 4),
         "alt_start_deg": round(b.alt_start_deg, 2), "alt_end_deg": round(b.alt_end_deg, 2),
         "az_start_deg": round(b.az_start_deg, 2), "az_end_deg": round(b.az_end_deg, 2),
         "drive_az_start_deg": round(b.drive_az_start_deg, 2),
@@ -871,15 +1137,15 @@ def block_record(b: Block, tz) -> dict:
         "sun_sep_min_deg": _r(b.sun_sep_min_deg, 2), "moon_sep_min_deg": _r(b.moon_sep_min_deg, 2),
         "lsr_corr_min_kms": _r(b.lsr_corr_min_kms, 3), "lsr_corr_max_kms": _r(b.lsr_corr_max_kms, 3),
         "repeat": b.repeat, "reference_for": b.reference_for,
-        "tuning": tuning_record(b.tuning) if b.kind != "slew" else None,
+        "tuning": tuning_record(b.tuning) if b.kind in ("target", "reference") else None,
     }
 
 
 def plan_summary(plan: SurveyPlan) -> dict:
-    """Totals: targets, integrations wanted/scheduled, minutes on targets, references, slews."""
+    """Totals: targets, integrations wanted/scheduled, minutes on targets, references, slews, stows."""
     wanted = sum(max(t.repeats - d, 0) for t, d in zip(plan.targets, plan.done_before))
     done = plan.completed()
-    minutes = {"target": 0.0, "reference": 0.0, "slew": 0.0}
+    minutes = {"target": 0.0, "reference": 0.0, "slew": 0.0, "stow": 0.0}
     for b in plan.blocks:
         minutes[b.kind] += b.minutes
     weight = sum(t.priority * int(n) for t, n in zip(plan.targets, done))
@@ -893,6 +1159,8 @@ def plan_summary(plan: SurveyPlan) -> dict:
         "integration_minutes": round(float(minutes["target"]), 2),
         "reference_minutes": round(float(minutes["reference"]), 2),
         "slew_minutes": round(float(minutes["slew"]), 2),
+        "stows": sum(1 for b in plan.blocks if b.kind == "stow"),
+        "stow_minutes": round(float(minutes["stow"]), 2),
         "done_before": int(sum(plan.done_before)),
     }
 
@@ -908,8 +1176,11 @@ def survey_document(plan: SurveyPlan, period: dict) -> dict:
         "period": period,
         "settings": {
             "night_only": s.night_only,
+            "night": s.night if s.night_only else None,
+            "night_sun_alt_deg": s.night_sun_alt_deg if s.night_only else None,
             "windows": [] if s.availability.is_always else s.availability.describe(),
             "sun_min_sep_deg": s.sun_min_sep_deg,
+            "sun_hazard_deg": s.sun_hazard_deg,
             "moon_min_sep_deg": s.moon_min_sep_deg,
             "alarm_minutes": s.alarm_minutes,
             "lsr_definition": s.lsr_definition,

@@ -59,6 +59,26 @@ def test_crossings_table_and_pointing_forms(capsys):
     assert code == 0 and "elevation 40.00" in out
 
 
+def test_crossings_report_sun_approaches(capsys):
+    """June, dec +20 on the meridian: the Sun (dec +23.0..+23.1) passes ~3 deg from the beam
+    at apparent noon (13:07 BST) every day: listed in JSON and flagged in the table."""
+    june = ("--start", "2027-06-10", "--days", "3")
+    code, out, _ = run(capsys, "crossings", "--site", "hollowmere", "--dec", "20", *june,
+                       "--format", "json")
+    doc = json.loads(out)
+    assert code == 0 and doc["sun_hazard_deg"] == 10.0 and doc["pointing"]["culmination"] == "upper"
+    assert len(doc["sun_approaches"]) == 3
+    for a in doc["sun_approaches"]:
+        assert a["hazard"] and 2.9 < a["sep_deg"] < 3.3 and a["closest_local"][11:16] in ("13:07", "13:08")
+        assert a["within_from_utc"] < a["closest_utc"] < a["within_to_utc"]
+    code, out, _ = run(capsys, "crossings", "--site", "hollowmere", "--dec", "20", *june)
+    assert "SUN HAZARD" in out and "cover the feed" in out
+    # Below the pole in March the Sun stays far away, and says so.
+    code, out, _ = run(capsys, "crossings", "--site", "hollowmere", "--elevation", "23.6",
+                       "--facing", "north", *PERIOD)
+    assert code == 0 and "never comes within 10° of the beam" in out
+
+
 def test_no_passage_is_explained(capsys):
     code, out, _ = run(capsys, "crossings", "--dec", "75", *PERIOD)
     assert code == 0 and "never comes within 3° of the galactic plane" in out

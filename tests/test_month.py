@@ -176,3 +176,169 @@ def test_tune_for_a_whole_plan_and_one_passage(tmp_path, capsys):
     assert one["l_ranges"] == "188–191"
     assert main(["tune", "--dec", "20", "--start", "2027-03-01", "--days", "2", "--passage", "9"]) == 2
     assert "only 4 passages" in capsys.readouterr().err
+
+
+# ------------------------------------------------------------------ feed safety
+
+def _astropy_sep_from_fixed(site, alt_deg, az_deg, mjd):
+    """(Sun separation from a fixed alt/az, Sun altitude), full astropy, degrees."""
+    import astropy.units as u
+    from astropy.coordinates import AltAz, EarthLocation, SkyCoord, get_sun
+    from astropy.time import Time
+    loc = EarthLocation(lat=site.latitude_deg * u.deg, lon=site.longitude_deg * u.deg,
+                        height=site.height_m * u.m)
+    frame = AltAz(obstime=Time(mjd, format="mjd"), location=loc)
+    sun = get_sun(frame.obstime).transform_to(frame)
+    beam = SkyCoord(alt=np.full(mjd.shape, alt_deg) * u.deg, az=np.full(mjd.shape, az_deg) * u.deg,
+                    frame=frame)
+    return beam.separation(sun).deg, sun.alt.deg, sun.az.deg
+
+
+def _check_plan_is_sun_safe(club, doc):
+    """Every parked minute and every move of a drift plan keeps the visible Sun 10 deg from
+    the beam, by astropy at 1-minute sampling (0.05 deg allowed for the sampling: the Sun
+    moves 0.25 deg a minute relative to a parked beam, and a minimum between samples is at
+    most 0.03 deg below the sampled one when it is farther than 10 deg)."""
+    tz_days = doc["days"]
+    from planner.timebase import parse_instant
+    start = parse_instant(doc["period"]["start_utc"], "t")
+    end = parse_instant(doc["period"]["end_utc"], "t")
+    # Setting in force at each minute: from the day records (moves change it mid-day).
+    changes = []
+    for day in tz_days:
+        park = day["park"]
+        if park is None:
+            continue
+        t = parse_instant(park["move_start_utc"], "t") if park["move"] else None
+        changes.append((t, park))
+    mjd = np.arange(start, end, 1 / 1440.0)
+    alt = np.full(mjd.shape, np.nan)
+    az = np.full(mjd.shape, np.nan)
+    current = None
+    edges = [(t if t is not None else start, p) for t, p in changes]
+    for (t, park), nxt in zip(edges, edges[1:] + [(end, None)]):
+        sel = (mjd >= t) & (mjd < nxt[0])
+        alt[sel], az[sel] = park["alt_deg"], park["az_deg"]
+    known = np.isfinite(alt)
+    worst = np.inf
+    for a, z in set(zip(alt[known], az[known])):
+        sel = known & (alt == a) & (az == z)
+        sep, sun_alt, _ = _astropy_sep_from_fixed(club, a, z, mjd[sel])
+        up = sun_alt > -0.833
+        worst = min(worst, float(sep[up].min(initial=np.inf)))
+    assert worst >= 10.0 - 0.05, worst
+    # Moves: the meridian arc between the two settings against the Sun during the move.
+    previous = None
+    for day in tz_days:
+        park = day["park"]
+        if park and park["move"] and previous is not None:
+            t0 = parse_instant(park["move_start_utc"], "t")
+            t1 = parse_instant(park["move_end_utc"], "t")
+            times = np.arange(t0, t1 + 1e-9, 1 / 1440.0)
+            _, s_alt, s_az = _astropy_sep_from_fixed(club, 0.0, 0.0, times)
+            angles = lambda p: p["alt_deg"] if p["az_deg"] > 90 else 180 - p["alt_deg"]  # noqa: E731
+            lo, hi = sorted((angles(previous), angles(park)))
+            arc = np.arange(lo, hi + 0.1, 0.1)
+            arc_alt = np.where(arc <= 90, arc, 180 - arc)
+            arc_az = np.where(arc <= 90, 180.0, 0.0)
+            cosd = (np.sin(np.radians(arc_alt))[:, None] * np.sin(np.radians(s_alt))[None, :]
+                    + np.cos(np.radians(arc_alt))[:, None] * np.cos(np.radians(s_alt))[None, :]
+                    * np.cos(np.radians(arc_az[:, None] - s_az[None, :])))
+            sep = np.degrees(np.arccos(np.clip(cosd, -1, 1)))
+            assert np.all(sep[:, s_alt > -0.833] >= 10.0 - 0.1)  # 0.05 deg arc step + sampling
+        previous = park or previous
+    return worst
+
+
+def test_june_month_never_parks_where_the_sun_crosses(club, tmp_path, capsys):
+    """The reported case: June, wanted 180-200 and 50-60, dish at +20 (the site's setting).
+    Without the guard the plan parked at +20 for days with the Sun 3 deg from the beam at
+    noon. Now no parked minute or move comes within 10 deg (astropy check)."""
+    out = tmp_path / "june.json"
+    code = main(["month", "--site", "hollowmere", "--start", "2027-06-10", "--days", "14",
+                 "--want", "180-200,50-60", "--format", "json", "-o", str(out)])
+    capsys.readouterr()
+    assert code == 0
+    doc = read_plan(out)
+    assert doc["summary"]["sun_hazards"] == 0 and doc["warnings"] == []
+    assert doc["settings"]["sun_hazard_deg"] == 10.0 and doc["site"]["sun_hazard_deg"] == 10.0
+    worst = _check_plan_is_sun_safe(club, doc)
+    print(f"closest visible Sun to the parked beam: {worst:.2f} deg")
+
+
+def test_demo_month_is_sun_safe(club, tmp_path, capsys):
+    out = tmp_path / "march.json"
+    assert main(["month", "--site", "hollowmere", "--month", "2027-03", "--want", "30-90,120-200",
+                 "--log", "examples/observation-log.csv", "--windows", "examples/windows.txt",
+                 "--format", "json", "-o", str(out)]) == 0
+    capsys.readouterr()
+    doc = read_plan(out)
+    assert doc["summary"]["sun_hazards"] == 0
+    _check_plan_is_sun_safe(club, doc)
+    # Below-pole settings are used and labelled.
+    kinds = {d["park"]["culmination"] for d in doc["days"] if d["park"]}
+    assert kinds <= {"upper", "lower"} and kinds
+
+
+def test_insisting_puts_a_task_on_every_hazard_day(tmp_path, capsys):
+    plan, ics = tmp_path / "p.json", tmp_path / "p.ics"
+    code = main(["month", "--site", "hollowmere", "--start", "2027-06-10", "--days", "5",
+                 "--want", "50-60", "--start-dec", "20", "--allow-sun-hazard", "-o", str(plan),
+                 "--ics", str(ics)])
+    out = capsys.readouterr().out
+    assert code == 0 and "SUN HAZARD" in out
+    doc = read_plan(plan)
+    assert doc["settings"]["allow_sun_hazard"] is True
+    assert doc["warnings"] and "--allow-sun-hazard" in doc["warnings"][0]
+    hazard_days = [d for d in doc["days"] if d["sun_hazards"]]
+    parked_20 = [d for d in doc["days"] if d["park"] and d["park"]["dec_deg"] == 20.0]
+    assert len(hazard_days) == len(parked_20) == 5  # the greedy keeps +20: it serves 50-60
+    for day in hazard_days:
+        h = day["sun_hazards"][0]
+        assert h["sep_deg"] < 4.0 and "cover the feed or move the dish" in h["action"]
+        assert h["from_local"][11:16] in h["action"]
+    # Calendar: one hazard event per day, each with an alarm at least an hour ahead.
+    import icalendar
+    cal = icalendar.Calendar.from_ical(ics.read_bytes())
+    events = [e for e in cal.walk("VEVENT") if str(e["SUMMARY"]).startswith("SUN HAZARD")]
+    assert len(events) == 5
+    for e in events:
+        triggers = [a["TRIGGER"].dt for a in e.walk("VALARM")]
+        assert triggers and all(t.total_seconds() <= -3600 for t in triggers)
+    assert "SUN HAZARD" in str(cal["DESCRIPTION"])
+    # The brief repeats the warning and marks the days.
+    from planner.brief import brief_markdown
+    text = brief_markdown(doc)
+    assert text.count("SUN HAZARD") >= 6
+
+
+def test_start_setting_hazard_before_first_move_is_a_task(tmp_path, capsys):
+    """The dish is at +23 and the first move slot is 19:00: the noon crossing on day one
+    cannot be planned away, so it becomes a task even without --allow-sun-hazard."""
+    plan = tmp_path / "p.json"
+    code = main(["month", "--site", "hollowmere", "--start", "2027-06-10", "--days", "3",
+                 "--want", "50-60", "--start-dec", "23", "--windows", "daily 19:00-23:00",
+                 "-o", str(plan)])
+    capsys.readouterr()
+    assert code == 0
+    doc = read_plan(plan)
+    first = doc["days"][0]
+    assert first["sun_hazards"] and first["sun_hazards"][0]["dish"]["dec_deg"] == 23.0
+    assert "before the first move slot" in doc["warnings"][0]
+    assert all(not d["sun_hazards"] for d in doc["days"][1:])  # moved away at 19:00
+    assert doc["days"][0]["park"]["move"]
+
+
+def test_guard_forbids_moves_through_the_sun(club):
+    """A noon move from dec 0 to dec 40 in June sweeps the meridian through the Sun (dec 23):
+    forbidden; the same move at 20:00 UTC is fine."""
+    from planner.month import _moves_ok, sun_guard
+    from planner.pointing import on_meridian_at_dec
+    start, end = local_day_span(date(2027, 6, 10), 2, club.tz)
+    result = sweep(club, [on_meridian_at_dec(club, 0.0), on_meridian_at_dec(club, 40.0)], start, end,
+                   per_occurrence=True)
+    guard = sun_guard(result)
+    day = 61566.0  # 2027-06-10 00:00 UTC
+    noon = day + 12.0 / 24  # 12:00-12:15 UTC: apparent noon at 2.07 W is 12:08 UTC
+    assert not _moves_ok(guard, 0, 2, noon, noon + 15 / 1440)[1]
+    assert _moves_ok(guard, 0, 2, day + 20 / 24, day + 20 / 24 + 15 / 1440)[1]

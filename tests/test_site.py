@@ -92,6 +92,9 @@ BAD_FIELDS = [
     ("rules", "band_deg", 0, r"band_deg = 0 is out of range"),
     ("rules", "band_deg", 95, r"band_deg = 95 is out of range"),
     ("rules", "sun_min_sep_deg", -1, r"sun_min_sep_deg = -1 is out of range"),
+    ("rules", "sun_hazard_deg", 0, r"sun_hazard_deg = 0 is out of range \(0, 45\]"),
+    ("rules", "sun_hazard_deg", 60, r"sun_hazard_deg = 60 is out of range"),
+    ("rules", "sun_hazard", 5, r"did you mean 'sun_hazard_deg'"),
     ("rules", "bin_width_deg", "1", r"bin_width_deg must be a number"),
 ]
 
@@ -144,3 +147,12 @@ def test_site_file_not_modified(tmp_path):
     before = (copy.read_bytes(), copy.stat().st_mtime_ns)
     load_site(str(copy))
     assert (copy.read_bytes(), copy.stat().st_mtime_ns) == before
+
+
+def test_feed_safety_rule_default_and_echo(tmp_path):
+    """sun_hazard_deg: 10 deg by default (common practice), configurable, in every site object."""
+    club = load_site("hollowmere")
+    assert club.rules.sun_hazard_deg == 10.0 and club.summary()["sun_hazard_deg"] == 10.0
+    raw = _raw("hollowmere")
+    raw["rules"]["sun_hazard_deg"] = 15
+    assert site_from_dict(raw, "x.toml").rules.sun_hazard_deg == 15.0

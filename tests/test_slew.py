@@ -7,6 +7,7 @@ from hypothesis import given, settings, strategies as st
 
 from planner.errors import UserError
 from planner.slew import choose_drive_az, drive_options_deg, move_time_s, slew_model
+from planner.sunsafety import slew_sun_sep_deg
 
 
 @pytest.fixture(scope="module")
@@ -102,3 +103,77 @@ def test_transit_mount_refused(club, school):
     no_rates = dataclasses.replace(school, dish=dataclasses.replace(school.dish, slew_az_deg_s=None))
     with pytest.raises(UserError, match="slew"):
         slew_model(no_rates)
+
+
+# ------------------------------------------------------------------ feed safety
+
+# About the clearance the survey asks of Saltbush Ridge slews: 10 deg of feed safety plus
+# 1.63 deg of margin (planner.survey.slew_sun_margin_deg), rounded.
+CLEAR = 11.7
+
+
+def test_sun_on_the_short_path_forces_the_long_way(model):
+    # From drive -100 (sky 260) to sky 200 at elevation 40: the short move is drive -160
+    # (60 deg of azimuth, 40 s + 10 s settle); the long one is drive +200 (300 deg through
+    # north, 200 s + 10 s). The Sun at elevation 40, azimuth 230 sits on the short path
+    # (drive -130). The long one passes sky azimuths 260..360 and 0..200, so its nearest
+    # points are its ends, 30 deg of azimuth away at elevation 40:
+    # cos d = sin^2 40 + cos^2 40 cos 30 = 0.4132 + 0.5082, d = 22.9 deg, clear of CLEAR.
+    free = choose_drive_az(model, -100.0, 40.0, 200.0, 40.0)
+    assert float(free[0]) == pytest.approx(-160.0) and float(free[1]) == pytest.approx(50.0)
+    drive, secs = choose_drive_az(model, -100.0, 40.0, 200.0, 40.0, sun_alt_deg=40.0,
+                                  sun_az_deg=230.0, sun_clear_deg=CLEAR)
+    assert float(drive) == pytest.approx(200.0)
+    assert float(secs) == pytest.approx(300 / 1.5 + 10.0)
+    # The same Sun 12 deg off the path (elevation 52) leaves the short move legal: the
+    # clearance is a distance, not a side of the sky.
+    drive, _ = choose_drive_az(model, -100.0, 40.0, 200.0, 40.0, sun_alt_deg=52.0,
+                               sun_az_deg=230.0, sun_clear_deg=CLEAR)
+    assert float(drive) == pytest.approx(-160.0)
+
+
+def test_sun_near_the_start_refuses_every_move(model):
+    # Every path starts where the dish is; with the Sun 5 deg above it no choice is legal.
+    drive, secs = choose_drive_az(model, -100.0, 40.0, 200.0, 40.0, sun_alt_deg=45.0,
+                                  sun_az_deg=260.0, sun_clear_deg=CLEAR)
+    assert np.isnan(drive) and np.isinf(secs)
+
+
+def test_sun_guard_is_vectorized_and_pruned(model):
+    # A Sun far below every path (night) costs no tracing and changes nothing.
+    starts = np.array([-100.0, 300.0, 0.0])
+    free = choose_drive_az(model, starts, 40.0, 200.0, 40.0)
+    night = choose_drive_az(model, starts, 40.0, 200.0, 40.0, sun_alt_deg=-30.0,
+                            sun_az_deg=np.array([230.0, 250.0, 100.0]), sun_clear_deg=CLEAR)
+    assert np.array_equal(free[0], night[0]) and np.array_equal(free[1], night[1])
+
+
+def test_many_starts_one_target_broadcasts(model):
+    # Regression: one target position against an array of start positions (the survey's
+    # gap filling) used to fail inside take_along_axis.
+    drive, secs = choose_drive_az(model, np.array([-100.0, 300.0, 340.0]),
+                                  np.array([40.0, 40.0, 40.0]), 200.0, 40.0, 0.0, 0.0)
+    assert drive.tolist() == [-160.0, 200.0, 200.0]
+    assert secs.shape == (3,)
+
+
+@settings(max_examples=100, deadline=None)
+@given(st.floats(-170, 350), st.floats(15, 88), st.floats(0, 359.999), st.floats(15, 88),
+       st.floats(-10, 89), st.floats(0, 359.999))
+def test_sun_guard_agrees_with_the_traced_path(school, from_drive, from_el, to_az, to_el,
+                                               sun_alt, sun_az):
+    # The pruning bound never clears a path the full trace would refuse: the chosen move's
+    # traced distance is at least the clearance, and a refused target has no clear choice.
+    model = slew_model(school)
+    clear = CLEAR
+    drive, secs = choose_drive_az(model, from_drive, from_el, to_az, to_el, sun_alt_deg=sun_alt,
+                                  sun_az_deg=sun_az, sun_clear_deg=clear)
+    options = drive_options_deg(model, to_az)
+    traced = [float(slew_sun_sep_deg(from_drive, from_el, o, to_el, model.rate_az_deg_s,
+                                     model.rate_el_deg_s, sun_alt, sun_az))
+              for o in options if np.isfinite(o)]
+    if np.isfinite(secs):
+        assert float(slew_sun_sep_deg(from_drive, from_el, drive, to_el, model.rate_az_deg_s,
+                                      model.rate_el_deg_s, sun_alt, sun_az)) >= clear
+    else:
+        assert all(sep < clear for sep in traced)

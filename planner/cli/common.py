@@ -88,6 +88,24 @@ def add_target(p):
     g.add_argument("--b", type=number(float, "--b", -90, 90), help="galactic latitude (deg), with --l")
 
 
+def add_night(p, what: str = "count only passages"):
+    """--night-only and --night KIND (which Sun altitude ends the day)."""
+    from ..avoidance import DEFAULT_NIGHT, NIGHT_SUN_ALTITUDE_DEG
+    p.add_argument("--night-only", action="store_true",
+                   help=f"{what} with the Sun down (its centre below the horizon, or as --night says)")
+    kinds = ", ".join(f"{k} {v:g}°" for k, v in NIGHT_SUN_ALTITUDE_DEG.items())
+    p.add_argument("--night", choices=tuple(NIGHT_SUN_ALTITUDE_DEG), metavar="KIND",
+                   help=f"what counts as night, implies --night-only: the Sun's centre below "
+                        f"{kinds} (default {DEFAULT_NIGHT})")
+
+
+def night_setting(args) -> tuple[bool, float, str]:
+    """(night only?, Sun altitude limit in deg, its name) from --night-only / --night."""
+    from ..avoidance import DEFAULT_NIGHT, NIGHT_SUN_ALTITUDE_DEG
+    kind = args.night or DEFAULT_NIGHT
+    return bool(args.night_only or args.night), NIGHT_SUN_ALTITUDE_DEG[kind], kind
+
+
 def add_lsr_definition(p):
     p.add_argument("--lsr-def", default="standard", choices=("standard", "dynamical", "schoenrich2010"),
                    help="solar motion defining the LSR (default: standard kinematic LSR)")
@@ -121,6 +139,18 @@ def resolve_pointing(args, site: Site) -> Pointing:
         raise UserError(f"no pointing: give --dec, --elevation or --alt/--az "
                         f"(or add [pointing] to {site.source})")
     return require_reachable(site, pointing)
+
+
+def current_setting(site: Site, start_dec: float | None = None) -> Pointing | None:
+    """Where the dish is parked now: ``start_dec`` (meridian), else the site's [pointing], or None."""
+    if start_dec is not None:
+        return on_meridian_at_dec(site, start_dec)
+    point = site.default_pointing
+    if "alt_deg" in point:
+        return from_altaz(site, point["alt_deg"], point["az_deg"])
+    if "dec_deg" in point:
+        return on_meridian_at_dec(site, point["dec_deg"])
+    return None
 
 
 def sky_target(args) -> tuple[float, float] | None:

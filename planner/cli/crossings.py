@@ -7,6 +7,7 @@ from ..outputs import check_writable
 from ..passages import search_passages_mjd
 from ..report import PASSAGE_FIELDS, crossings_document, crossings_renderable, to_csv, to_json
 from ..site import load_site
+from ..sunsafety import sun_approaches
 from .common import (add_output, add_period, add_pointing, add_site, emit, number, period_span,
                      resolve_pointing)
 
@@ -30,10 +31,11 @@ def run(args, console: Console) -> int:
     pointing = resolve_pointing(args, site)
     start_mjd, end_mjd = period_span(args, site)
     search = search_passages_mjd(site, pointing, start_mjd, end_mjd, args.band)
+    approaches = sun_approaches(site, [pointing], start_mjd, end_mjd)
     if args.format == "table":
-        emit(args, console, None, crossings_renderable(site, pointing, search))
+        emit(args, console, None, crossings_renderable(site, pointing, search, approaches))
     else:
-        doc = crossings_document(site, pointing, search)
+        doc = crossings_document(site, pointing, search, approaches)
         text = to_json(doc) if args.format == "json" else to_csv(doc["passages"], PASSAGE_FIELDS)
         emit(args, console, text)
     return 0

@@ -9,7 +9,7 @@ from rich.console import Console
 from ..coverage import sweep
 from ..errors import UserError
 from ..galaxy import model_from_name
-from ..month import Goal, minutes_for_rms, move_slots, plan_month
+from ..month import Goal, minutes_for_rms, move_slots, plan_month, sun_guard
 from ..obslog import coverage_minutes, read_log
 from ..outputs import check_writable, write_atomic
 from ..park import DEFAULT_TARGET_MINUTES, candidate_pointings, parse_want
@@ -17,8 +17,8 @@ from ..planfile import drift_plan_document
 from ..report import month_renderable, to_json
 from ..site import load_site
 from ..timebase import local_day_span, parse_day
-from .common import (add_lsr_definition, add_site, emit, figure_bytes, load_windows, note, number,
-                     today_at)
+from .common import (add_lsr_definition, add_night, add_site, current_setting, emit, figure_bytes,
+                     load_windows, night_setting, note, number, today_at)
 
 NAME = "month"
 HELP = "plan a month of drift scans: where to park each day, what to record"
@@ -43,7 +43,7 @@ def add_arguments(p) -> None:
                                      "first window of a day")
     p.add_argument("--record-in-windows", action="store_true",
                    help="count recordings only inside the windows (someone must attend them)")
-    p.add_argument("--night-only", action="store_true", help="record only with the Sun down")
+    add_night(p, "record only")
     p.add_argument("--repark-minutes", type=number(float, "--repark-minutes", 0, 600), default=15.0,
                    help="time a volunteer needs to move the dish (default 15)")
     p.add_argument("--min-days-between-moves", type=number(int, "--min-days-between-moves", 1, 92),
@@ -54,6 +54,10 @@ def add_arguments(p) -> None:
                    help="declination step (deg; default half the beamwidth)")
     p.add_argument("--band", type=number(float, "--band", 0, 90, lo_open=True, hi_open=True),
                    help="half-width of the |b| strip (deg; default from the site rules)")
+    p.add_argument("--allow-sun-hazard", action="store_true",
+                   help="plan even settings and moves that bring the Sun within the site's "
+                        "sun_hazard_deg of the feed (not advised): every such day then gets a "
+                        "'cover the feed or move the dish' task, a calendar alarm and a warning")
     p.add_argument("--rotation", default="iau1985", help="rotation model for tuning (default iau1985)")
     p.add_argument("--alarm", type=number(int, "--alarm", 0, 1440), default=15,
                    help="reminder lead for calendar events (minutes, default 15)")
@@ -97,29 +101,35 @@ def build_plan(args, site):
     avail, intervals = load_windows(args.windows, site, start_mjd, end_mjd)
     # As written (our window syntax), so the plan can be read back by the charts.
     windows_text = [rule.text for rule in avail.rules] if avail else []
-    pointings = candidate_pointings(site, args.step)
+    current = _start_setting(site, args)
+    pointings = candidate_pointings(site, args.step, extra=(current,) if current else ())
     if not pointings:
         raise UserError(f"{site.source}: no declination is reachable with this dish's limits")
-    pointings = _with_start(site, args, pointings)
-    result = sweep(site, pointings, start_mjd, end_mjd, args.band, args.night_only,
-                   intervals if args.record_in_windows else None, args.lsr_def, per_occurrence=True)
+    night_only, night_alt, night_kind = night_setting(args)
+    result = sweep(site, pointings, start_mjd, end_mjd, args.band, night_only,
+                   intervals if args.record_in_windows else None, args.lsr_def, per_occurrence=True,
+                   night_sun_alt_deg=night_alt)
     if not any(r.bin_usable_s.sum() > 0 for r in result.rows):
         raise UserError("nothing to plan because no passage is usable in this period "
-                        "(every one is too close to the Sun" + (", in daylight" if args.night_only else "")
+                        "(every one is too close to the Sun" + (", in daylight" if night_only else "")
                         + (" or outside the windows" if args.record_in_windows else "") + ")")
     slots = move_slots(start_mjd, days, site.tz, intervals)
     if not slots:
         raise UserError("nothing to plan because no availability window falls on any day")
-    start_row = _start_row(args, site, result)
+    start_row = _start_row(current, result)
     goal = Goal(want=want, target_minutes=target, done_minutes=done)
-    plan = plan_month(result, goal, slots, start_row, args.repark_minutes, args.min_days_between_moves)
+    guard = sun_guard(result, enforce=not args.allow_sun_hazard)
+    plan = plan_month(result, goal, slots, start_row, args.repark_minutes, args.min_days_between_moves,
+                      guard)
     settings = {
         "band_deg": result.band_deg, "bin_width_deg": bw,
         "want": _want_ranges(args.want), "target_minutes": round(target, 3),
-        "target_rms_k": args.target_rms, "night_only": args.night_only,
+        "target_rms_k": args.target_rms, "night_only": night_only,
+        "night": night_kind if night_only else None,
         "record_in_windows": args.record_in_windows, "windows": windows_text,
         "max_reparks_per_day": 1, "min_days_between_moves": args.min_days_between_moves,
         "repark_minutes": args.repark_minutes, "sun_min_sep_deg": site.rules.sun_min_sep_deg,
+        "sun_hazard_deg": site.rules.sun_hazard_deg, "allow_sun_hazard": args.allow_sun_hazard,
         "lsr_definition": args.lsr_def, "rotation_model": args.rotation,
         "alarm_minutes": args.alarm, "log": args.log,
     }
@@ -137,28 +147,28 @@ def _want_ranges(text):
     return out
 
 
-def _with_start(site, args, pointings):
-    """Add the dish's current declination to the candidates, so staying is exact."""
-    from ..pointing import on_meridian_at_dec, reachability_problem
-    dec = args.start_dec if args.start_dec is not None else site.default_pointing.get("dec_deg")
-    if dec is None:
-        return pointings
-    current = on_meridian_at_dec(site, dec)
-    if reachability_problem(site, current) is not None:
-        raise UserError(f"--start-dec: the dish cannot be parked at declination {dec:g} "
-                        f"({reachability_problem(site, current)})")
-    if any(abs(p.dec_deg - dec) < 1e-9 for p in pointings):
-        return pointings
-    return sorted(pointings + [current], key=lambda p: p.dec_deg)
-
-
-def _start_row(args, site, result):
-    """Sweep row nearest the dish's current declination, or None."""
-    dec = args.start_dec if args.start_dec is not None else site.default_pointing.get("dec_deg")
-    if dec is None:
+def _start_setting(site, args):
+    """Where the dish is parked when the period starts (--start-dec or the site's [pointing])."""
+    from ..pointing import reachability_problem
+    current = current_setting(site, args.start_dec)
+    if current is None:
         return None
-    decs = np.array([r.pointing.dec_deg for r in result.rows])
-    return int(np.argmin(np.abs(decs - dec)))
+    problem = reachability_problem(site, current)
+    if problem is not None:
+        what = "--start-dec" if args.start_dec is not None else f"{site.source}: [pointing]"
+        raise UserError(f"{what}: the dish cannot be parked there ({problem})")
+    return current
+
+
+def _start_row(current, result):
+    """Sweep row of the dish's current setting, or None."""
+    if current is None:
+        return None
+    for r, row in enumerate(result.rows):
+        p = row.pointing
+        if abs(p.dec_deg - current.dec_deg) < 1e-6 and abs(p.ha_deg - current.ha_deg) < 1e-6:
+            return r
+    return None
 
 
 def _chart_paths(chart: str):

@@ -8,11 +8,13 @@ from ..coverage import sweep
 from ..errors import UserError
 from ..obslog import coverage_minutes, read_log
 from ..outputs import check_writable, write_atomic
-from ..park import DEFAULT_TARGET_MINUTES, advise, candidate_pointings, parse_want
+from ..park import DEFAULT_TARGET_MINUTES, advise, candidate_pointings, parse_want, recommended
 from ..report import PARK_FIELDS, park_document, park_renderable, to_csv, to_json
 from ..site import load_site
-from .common import (add_lsr_definition, add_output, add_period, add_site, emit, figure_bytes,
-                     load_windows, number, period_span)
+from ..sunsafety import sun_approaches
+from .common import (add_lsr_definition, add_night, add_output, add_period, add_site,
+                     current_setting, emit, figure_bytes, load_windows, night_setting, number,
+                     period_span)
 
 NAME = "park"
 HELP = "which declination to park a dish at, ranked for your goals"
@@ -30,7 +32,7 @@ def add_arguments(p) -> None:
     p.add_argument("--target-minutes", type=number(float, "--target-minutes", 0, 1e5, lo_open=True),
                    default=DEFAULT_TARGET_MINUTES,
                    help=f"integration wanted per bin (minutes; default {DEFAULT_TARGET_MINUTES:g})")
-    p.add_argument("--night-only", action="store_true", help="count only passages with the Sun down")
+    add_night(p)
     p.add_argument("--windows", help="operator availability: a file or text like 'Mon-Fri 19:00-23:30'")
     p.add_argument("--top", type=number(int, "--top", 1, 1000), default=8,
                    help="declinations shown in the table (default 8; JSON/CSV list all)")
@@ -53,14 +55,18 @@ def run(args, console: Console) -> int:
         done = coverage_minutes(read_log(args.log), bw)
     avail, intervals = load_windows(args.windows, site, start_mjd, end_mjd)
     windows_text = avail.describe() if avail else []
-    pointings = candidate_pointings(site, args.step)
+    current = current_setting(site)
+    pointings = candidate_pointings(site, args.step, extra=(current,) if current else ())
     if not pointings:
         raise UserError(f"{site.source}: no declination is reachable with this dish's elevation "
                         "limits and horizon mask")
-    result = sweep(site, pointings, start_mjd, end_mjd, args.band, args.night_only, intervals,
-                   args.lsr_def)
-    advice = advise(result, want, done, args.target_minutes)
-    doc = park_document(result, advice, args.want, args.target_minutes, args.log, windows_text)
+    night_only, night_alt, night_kind = night_setting(args)
+    result = sweep(site, pointings, start_mjd, end_mjd, args.band, night_only, intervals,
+                   args.lsr_def, night_sun_alt_deg=night_alt)
+    approaches = sun_approaches(site, pointings, start_mjd, end_mjd)
+    advice = advise(result, want, done, args.target_minutes, approaches)
+    doc = park_document(result, advice, args.want, args.target_minutes, args.log, windows_text,
+                        night_kind if night_only else None)
     if plot_paths:
         _write_plots(plot_paths, result, advice, want, done, args, site)
     if args.format == "json":
@@ -88,7 +94,7 @@ def _write_plots(paths, result, advice, want, done, args, site) -> None:
     from ..plots import coverage_atlas, sky_track_map
     atlas_path, sky_path = paths
     figures = [(atlas_figure(result, want, done, args.target_minutes, coverage_atlas), atlas_path),
-               (sky_figure(result, advice[0], sky_track_map), sky_path)]
+               (sky_figure(result, (recommended(advice) or advice)[0], sky_track_map), sky_path)]
     for fig, path in figures:
         write_atomic(path, figure_bytes(fig, path.suffix.lstrip(".").lower()), args.force)
 
@@ -97,11 +103,18 @@ def atlas_figure(result, want, done, target_minutes, coverage_atlas):
     """The coverage atlas of a sweep: usable hours per declination and bin."""
     from ..report import period_summary
     bw = result.bin_width_deg
-    decs = np.array([r.pointing.dec_deg for r in result.rows])
-    hours = np.array([r.bin_usable_s / 3600.0 for r in result.rows])
+    # Meridian settings only (the dish's current setting may be anywhere), by culmination.
+    upper = [r for r in result.rows if r.pointing.culmination == "upper" and r.pointing.facing in
+             ("north", "south", "zenith")]
+    lower = [r for r in result.rows if r.pointing.culmination == "lower" and r.pointing.facing in
+             ("north", "south")]
+    decs = np.array([r.pointing.dec_deg for r in upper])
+    hours = np.array([r.bin_usable_s / 3600.0 for r in upper]).reshape(len(upper), -1)
     period = period_summary(result.start_mjd, result.end_mjd, result.site.tz)
     return coverage_atlas(
         decs, result.bin_starts_deg, hours, reachable_dec=(decs.min(), decs.max()),
+        lower_dec_deg=[r.pointing.dec_deg for r in lower],
+        lower_hours=np.array([r.bin_usable_s / 3600.0 for r in lower]).reshape(len(lower), -1),
         wanted_bins=result.bin_starts_deg[want], covered_bins=result.bin_starts_deg[done >= target_minutes],
         site_name=result.site.name, period_text=f"{period['start_local'][:10]} – {period['end_local'][:10]}",
         band_deg=result.band_deg, bin_width_deg=bw)

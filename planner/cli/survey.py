@@ -19,7 +19,8 @@ from ..slew import slew_model
 from ..survey import BLOCK_FIELDS, SurveySettings, plan_survey, repeats_done_from_log, survey_document
 from ..targets import GRID_EXAMPLE, check_unique, parse_grid, parse_reference, read_targets
 from ..windows import ALWAYS, read_windows
-from .common import add_lsr_definition, add_output, add_period, add_site, emit, number, period_span
+from .common import (add_lsr_definition, add_night, add_output, add_period, add_site, emit,
+                     night_setting, number, period_span)
 
 NAME = "survey"
 HELP = "schedule pointed integrations of a target grid or list (steerable dish)"
@@ -47,7 +48,7 @@ def add_arguments(p) -> None:
     c = p.add_argument_group("constraints (defaults from the site file)")
     c.add_argument("--windows", help="operator availability: windows text ('Mon-Fri 19:00-23:30') "
                                      "or a file of them; slews and blocks stay inside")
-    c.add_argument("--night-only", action="store_true", help="only while the Sun is below the horizon")
+    add_night(c, "observe only")
     c.add_argument("--log", metavar="FILE",
                    help="observation log: targets whose longitude bin already has their minutes "
                         "count as done")
@@ -86,11 +87,13 @@ def run(args, console) -> int:
     done = None
     if args.log is not None:
         done = repeats_done_from_log(targets, read_log(args.log), site.rules.bin_width_deg)
+    night_only, night_alt, night_kind = night_setting(args)
     settings = SurveySettings(
         start_mjd=start_mjd, end_mjd=end_mjd,
         sun_min_sep_deg=site.rules.sun_min_sep_deg if args.sun_sep is None else args.sun_sep,
         moon_min_sep_deg=site.rules.moon_min_sep_deg if args.moon_sep is None else args.moon_sep,
-        night_only=args.night_only, availability=availability, reference=reference,
+        night_only=night_only, night_sun_alt_deg=night_alt, night=night_kind,
+        sun_hazard_deg=site.rules.sun_hazard_deg, availability=availability, reference=reference,
         reference_minutes=args.reference_minutes, lsr_definition=args.lsr_def, rotation=model,
         rotation_name=args.rotation.strip().lower(), alarm_minutes=args.alarm_minutes)
     plan = plan_survey(site, targets, settings, done)
@@ -128,10 +131,12 @@ def survey_renderable(doc: dict):
     head.append(f"Period {period['start_local'][:16].replace('T', ' ')} – "
                 f"{period['end_local'][:16].replace('T', ' ')} local ({period['days']:g} "
                 f"day{'' if period['days'] == 1 else 's'}); "
-                f"Sun ≥ {settings['sun_min_sep_deg']:g}°, Moon ≥ {settings['moon_min_sep_deg']:g}°, "
+                f"Sun ≥ {settings['sun_min_sep_deg']:g}° (feed safety "
+                f"{settings['sun_hazard_deg']:g}°, slews and rests too), "
+                f"Moon ≥ {settings['moon_min_sep_deg']:g}°, "
                 f"elevation {site['elevation_min_deg']:g}–{site['elevation_max_deg']:g}° and mask")
     if settings["night_only"]:
-        head.append(", night only")
+        head.append(f", night only ({settings.get('night') or 'horizon'})")
     head.append("\nWindows: " + ("; ".join(settings["windows"]) if settings["windows"] else "any time"))
     if settings["reference"]:
         head.append(f"\nReferences: {settings['reference']}")
@@ -146,6 +151,13 @@ def survey_renderable(doc: dict):
         date = b["start_local"][:10]
         day = _date_label(b["start_local"]) if date != last_date else ""
         last_date = date
+        if b["kind"] == "stow":
+            table.add_row(day, _local(b["start_local"]), _local(b["end_local"]), "stow",
+                          "safe from the Sun", "",
+                          f"{b['alt_start_deg']:.0f}", f"{b['drive_az_start_deg']:.0f}",
+                          "" if b["sun_sep_min_deg"] is None else f"{b['sun_sep_min_deg']:.0f}",
+                          "", "", style="dim")
+            continue
         if b["kind"] == "slew":
             table.add_row(day, _local(b["start_local"]), _local(b["end_local"]), "slew",
                           f"→ {b['name']} ({b['minutes'] * 60:.0f} s)", "",
@@ -166,7 +178,9 @@ def survey_renderable(doc: dict):
                 f"integrations scheduled ({summary['targets_complete']} of {summary['targets']} "
                 f"targets complete); {summary['integration_minutes']:.0f} min on targets, "
                 f"{summary['reference_minutes']:.0f} min on references, "
-                f"{summary['slew_minutes']:.1f} min slewing.")
+                f"{summary['slew_minutes']:.1f} min slewing"
+                + (f", {summary['stows']} stow{'s' if summary['stows'] != 1 else ''} "
+                   "(safe from the Sun)." if summary.get("stows") else "."))
     if summary["done_before"]:
         foot.append(f" {summary['done_before']} integrations already in the log.")
     by_reason = defaultdict(list)
