@@ -4,7 +4,7 @@ Ours: ``coverage.sweep`` for every reachable declination at 1 deg steps over 365
 days at the bundled northern site. Baseline: astropy AltAz -> Galactic at
 1-minute sampling for the same declinations; it would take hours, so it is run on
 a subset (3 declinations x 5 days) and its time per sample is scaled to the full
-problem. Agreement on the subset: covered bins, and band-entry times (astropy's
+problem. Agreement on the subset: covered bins, and strip-entry times (astropy's
 entries interpolated linearly between the 1-minute samples).
 
 Run from the repository root: ``.venv/bin/python benchmarks/bench_park.py``.
@@ -32,18 +32,18 @@ SUBSET_DECS = (0.0, 30.0, 55.0)
 SUBSET_DAYS = 5
 
 
-def _astropy_subset(site, pointing, band):
+def _astropy_subset(site, pointing, b_max):
     mjd = START + np.arange(SUBSET_DAYS * 1440) / 1440.0
     loc = EarthLocation(lat=site.latitude_deg * u.deg, lon=site.longitude_deg * u.deg,
                         height=site.height_m * u.m)
     frame = AltAz(obstime=Time(mjd, format="mjd"), location=loc)
     gal = SkyCoord(alt=np.full(mjd.size, pointing.alt_deg) * u.deg,
                    az=np.full(mjd.size, pointing.az_deg) * u.deg, frame=frame).transform_to(Galactic())
-    excess = np.abs(gal.b.deg) - band
+    excess = np.abs(gal.b.deg) - b_max
     inside = excess <= 0
     bins = set(np.floor(gal.l.deg[inside]).astype(int) % 360)
     i = np.flatnonzero(inside[1:] & ~inside[:-1])
-    frac = excess[i] / (excess[i] - excess[i + 1])  # linear interpolation to |b| = band
+    frac = excess[i] / (excess[i] - excess[i + 1])  # linear interpolation to |b| = b_max
     entries = mjd[i] + frac / 1440.0
     return bins, entries, mjd.size
 
@@ -56,13 +56,13 @@ def run() -> dict:
     full = sweep(site, pointings, START, START + DAYS)
     ours_s = time.perf_counter() - t0
 
-    band = site.rules.band_deg
+    b_max = site.rules.b_max_deg
     by_dec = {round(r.pointing.dec_deg, 6): r for r in full.rows}
     t0 = time.perf_counter()
     worst_s, bins_ok, n_samples = 0.0, True, 0
     for dec in SUBSET_DECS:
         row = by_dec[dec]
-        ref_bins, ref_entries, n = _astropy_subset(site, row.pointing, band)
+        ref_bins, ref_entries, n = _astropy_subset(site, row.pointing, b_max)
         n_samples += n
         starts = np.sort(row.occurrences.start_mjd)
         starts = starts[(starts > START) & (starts < START + SUBSET_DAYS)]
@@ -76,7 +76,7 @@ def run() -> dict:
     return {
         "case": f"Park sweep, {len(pointings)} declinations x {DAYS} d (1 deg steps)",
         "ours_s": ours_s, "baseline_s": baseline_s, "ratio": baseline_s / ours_s,
-        "agreement": (f"bins {'agree' if bins_ok else 'DIFFER'}; band entries within "
+        "agreement": (f"bins {'agree' if bins_ok else 'DIFFER'}; strip entries within "
                       f"{worst_s:.1f} s (astropy on {len(SUBSET_DECS)} decs x {SUBSET_DAYS} d, "
                       "scaled)"),
     }

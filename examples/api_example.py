@@ -34,7 +34,7 @@ for p in search.passages:
 
 usable = [p for p in search.passages if p.sun_ok]
 bins = sorted({b for p in usable for b in p.l_bins})
-setup = line_setup(bins, site.rules.bin_width_deg, site.rules.band_deg,
+setup = line_setup(bins, site.rules.bin_width_deg, site.rules.b_max_deg,
                    min(p.lsr_corr_min_kms for p in usable), max(p.lsr_corr_max_kms for p in usable),
                    site.receiver, model_from_name("iau1985"))
 print(f"Tune to {setup.advice.centre_mhz:.3f} MHz; line spans {setup.advice.line_span_mhz:.3f} MHz; "

@@ -347,7 +347,8 @@ def _site_section(doc: dict) -> Section:
                   f"{_deg(site.get('beamwidth_deg'), 2)} (half power)."),
         ("Elevation limits:", f"{_deg(site.get('elevation_min_deg'))} to "
                               f"{_deg(site.get('elevation_max_deg'))}; never set the dish outside them."),
-        ("Band:", f"the galactic plane strip |b| ≤ {_deg(site.get('band_deg'))}."),
+        ("Latitude strip:", "the galactic plane strip |b| ≤ "
+                            f"{_deg(site.get('b_max_deg', site.get('band_deg')))}."),  # band_deg: older plans
         ("Sun rule:", f"no recording with the beam closer than {_deg(sun_rule, 0)} to the Sun; "
                       "such passages are left out of this plan."),
     ]

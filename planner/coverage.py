@@ -1,7 +1,7 @@
 """Which galactic longitudes a parked dish covers, for many declinations at once.
 
 A parked beam sees the same sky every sidereal day, so its passages through
-the |b| <= band strip recur at fixed Earth-rotation angles. The sweep finds
+the |b| <= b_max strip recur at fixed Earth-rotation angles. The sweep finds
 them once per declination on a one-sidereal-day *template* and maps every
 template passage to each day of the period; Sun, daylight, operator windows
 and LSR corrections are then evaluated only at those passages.
@@ -12,7 +12,7 @@ Steps, vectorized over all declinations together:
    the slow drift of the ICRS track (annual aberration +/-20 arcsec,
    precession 50 arcsec/yr) moves passage times by well under 2 s.
 2. At each epoch, sample 1.5 days of the track for every declination every
-   ``step_s`` (120 s); runs of in-band samples that start within the first
+   ``step_s`` (120 s); runs of in-strip samples that start within the first
    sidereal day are the template passages. Edges are refined by bisection
    to 0.05 s.
 3. Each template passage is re-sampled every ``detail_step_s`` (20 s): the
@@ -57,7 +57,7 @@ class Occurrences:
     lsr_max_kms: np.ndarray
     usable: np.ndarray  # bool: Sun far enough, and night if night-only
     template: np.ndarray  # index of the template passage it repeats
-    l_start_deg: np.ndarray  # galactic longitude at band entry and exit
+    l_start_deg: np.ndarray  # galactic longitude at strip entry and exit
     l_end_deg: np.ndarray
     bin_seconds: np.ndarray | None = None  # (O, B) seconds per bin inside period and windows
 
@@ -72,7 +72,7 @@ class DeclinationCoverage:
     bin_usable_s: np.ndarray  # (B,) the same, usable passages and inside windows only
     sun_lost_fraction: float  # passages lost to the Sun / all passages
     daylight_lost_fraction: float  # passages lost to daylight (night-only) / all passages
-    window_lost_fraction: float  # in-band time outside operator windows / all in-band time
+    window_lost_fraction: float  # in-strip time outside operator windows / all in-strip time
     lsr_corr_min_kms: float | None  # over usable passages (all passages if none usable)
     lsr_corr_max_kms: float | None
 
@@ -84,7 +84,7 @@ class Sweep:
     site: Site
     start_mjd: float
     end_mjd: float
-    band_deg: float
+    b_max_deg: float
     bin_width_deg: float
     night_only: bool
     rows: list[DeclinationCoverage]
@@ -100,7 +100,7 @@ class _Templates:
     """Template passages at one epoch, for all declinations (P passages, S samples)."""
 
     row: np.ndarray  # (P,) declination index
-    start_mjd: np.ndarray  # (P,) refined band entry (UTC)
+    start_mjd: np.ndarray  # (P,) refined strip entry (UTC)
     end_mjd: np.ndarray  # (P,)
     sample_passage: np.ndarray  # (S,) passage index of each detail sample
     sample_offset_d: np.ndarray  # (S,) days from the passage start (sub-interval midpoint)
@@ -109,19 +109,19 @@ class _Templates:
     sample_vec: np.ndarray  # (S, 3) ICRS direction at the sub-interval midpoint
 
 
-def _refine(beam: FixedBeams, lo, hi, row, band, rising: bool, tol_days: float) -> np.ndarray:
-    """Bisection for |b| = band between lo (outside if rising) and hi."""
+def _refine(beam: FixedBeams, lo, hi, row, b_max, rising: bool, tol_days: float) -> np.ndarray:
+    """Bisection for |b| = b_max between lo (outside if rising) and hi."""
     lo, hi = lo.copy(), hi.copy()
     while lo.size and np.max(hi - lo) > tol_days:
         mid = 0.5 * (lo + hi)
-        in_band = np.abs(beam.b_deg(mid, row)) <= band
-        move_hi = in_band if rising else ~in_band
+        in_strip = np.abs(beam.b_deg(mid, row)) <= b_max
+        move_hi = in_strip if rising else ~in_strip
         hi = np.where(move_hi, mid, hi)
         lo = np.where(move_hi, lo, mid)
     return 0.5 * (lo + hi)
 
 
-def _templates(beam: FixedBeams, epoch_mjd: float, band: float, step_s: float,
+def _templates(beam: FixedBeams, epoch_mjd: float, b_max: float, step_s: float,
                detail_step_s: float, bin_width: float) -> _Templates:
     """Template passages starting within one sidereal day of ``epoch_mjd``."""
     n_rows = beam.dec_deg.size
@@ -130,22 +130,22 @@ def _templates(beam: FixedBeams, epoch_mjd: float, band: float, step_s: float,
     m = grid.size
     t_all = np.tile(grid, n_rows)
     r_all = np.repeat(np.arange(n_rows), m)
-    in_band = (np.abs(beam.b_deg(t_all, r_all)) <= band).reshape(n_rows, m)
+    in_strip = (np.abs(beam.b_deg(t_all, r_all)) <= b_max).reshape(n_rows, m)
 
     # Run starts/ends per row; a run touching the grid's first sample is a repeat of one
     # that starts a sidereal day later, and a run must start within the first sidereal day.
     padded = np.zeros((n_rows, m + 2), dtype=np.int8)
-    padded[:, 1:-1] = in_band
+    padded[:, 1:-1] = in_strip
     diff = np.diff(padded, axis=1)
     s_row, s_idx = np.nonzero(diff == 1)
     e_row, e_idx = np.nonzero(diff == -1)
-    e_idx = e_idx - 1  # last in-band sample of each run; runs pair up in row-major order
+    e_idx = e_idx - 1  # last in-strip sample of each run; runs pair up in row-major order
     day_end = epoch_mjd + SIDEREAL_DAY_UT1_DAYS
     keep = (s_idx > 0) & (e_idx < m - 1) & (grid[s_idx] < day_end)
     row, s_idx, e_idx = s_row[keep], s_idx[keep], e_idx[keep]
     tol = 0.05 / SECONDS_PER_DAY
-    start = _refine(beam, grid[s_idx - 1], grid[s_idx], row, band, True, tol)
-    end = _refine(beam, grid[e_idx], grid[e_idx + 1], row, band, False, tol)
+    start = _refine(beam, grid[s_idx - 1], grid[s_idx], row, b_max, True, tol)
+    end = _refine(beam, grid[e_idx], grid[e_idx + 1], row, b_max, False, tol)
 
     # Detail samples: midpoints of equal sub-intervals, each weighted by its length.
     dstep = detail_step_s / SECONDS_PER_DAY
@@ -202,7 +202,7 @@ def _pick_samples(tpl: _Templates, which: np.ndarray, fractions) -> np.ndarray:
 
 
 def sweep(site: Site, pointings: list[Pointing], start_mjd: float, end_mjd: float,
-          band_deg: float | None = None, night_only: bool = False, window_intervals=None,
+          b_max_deg: float | None = None, night_only: bool = False, window_intervals=None,
           solar_motion: str = "standard", step_s: float = 120.0,
           detail_step_s: float = 20.0, per_occurrence: bool = False,
           night_sun_alt_deg: float = 0.0) -> Sweep:
@@ -218,7 +218,7 @@ def sweep(site: Site, pointings: list[Pointing], start_mjd: float, end_mjd: floa
     while inside a window
     and inside the period.
     """
-    band = site.rules.band_deg if band_deg is None else float(band_deg)
+    b_max = site.rules.b_max_deg if b_max_deg is None else float(b_max_deg)
     bw = site.rules.bin_width_deg
     n_bins = int(round(360.0 / bw))
     n_rows = len(pointings)
@@ -234,7 +234,7 @@ def sweep(site: Site, pointings: list[Pointing], start_mjd: float, end_mjd: floa
     n_done = 0
     for k, (lo, hi) in enumerate(zip(edges[:-1], edges[1:])):  # a few epochs, not samples
         epoch = 0.5 * (lo + hi) - 0.5 * SIDEREAL_DAY_UT1_DAYS
-        tpl = _templates(beam, epoch, band, step_s, detail_step_s, bw)
+        tpl = _templates(beam, epoch, b_max, step_s, detail_step_s, bw)
         if tpl.row.size == 0:
             continue
         which, start = _occurrence_starts(tpl, lo, hi, take_running=(k == 0))
@@ -247,7 +247,7 @@ def sweep(site: Site, pointings: list[Pointing], start_mjd: float, end_mjd: floa
                     in_band_s, in_window_s)
 
     result = _assemble(site, pointings, parts, total, usable_s, in_band_s, in_window_s,
-                       start_mjd, end_mjd, band, bw, night_only, window_intervals is not None)
+                       start_mjd, end_mjd, b_max, bw, night_only, window_intervals is not None)
     return replace(result, night_sun_alt_deg=float(night_sun_alt_deg))
 
 
@@ -324,7 +324,7 @@ def _accumulate(tpl, occ, start_mjd, end_mjd, window_intervals, total, usable_s,
 
 
 def _assemble(site, pointings, parts, total, usable_s, in_band_s, in_window_s, start_mjd,
-              end_mjd, band, bw, night_only, have_windows) -> Sweep:
+              end_mjd, b_max, bw, night_only, have_windows) -> Sweep:
     keys = ("row", "which", "start", "end", "sun_sep", "sun_alt_max", "lsr_min", "lsr_max",
             "sun_ok", "dark", "usable", "l_start", "l_end")
     occ = {k: np.concatenate([p[k] for p in parts]) if parts else np.zeros(0) for k in keys}
@@ -359,5 +359,5 @@ def _assemble(site, pointings, parts, total, usable_s, in_band_s, in_window_s, s
             lsr_corr_min_kms=float(o["lsr_min"][lsr_from].min()) if n else None,
             lsr_corr_max_kms=float(o["lsr_max"][lsr_from].max()) if n else None,
         ))
-    return Sweep(site=site, start_mjd=start_mjd, end_mjd=end_mjd, band_deg=band,
+    return Sweep(site=site, start_mjd=start_mjd, end_mjd=end_mjd, b_max_deg=b_max,
                  bin_width_deg=bw, night_only=night_only, rows=rows)

@@ -243,7 +243,7 @@ def _with_reason(a: Advice, sweep: Sweep, need_min: np.ndarray) -> Advice:
             f"(limit {sweep.site.rules.sun_hazard_deg:g}°) on {date_ranges(a.hazard_dates)}; "
             "do not park here then."))
     if row.occurrences.start_mjd.size == 0:
-        return replace(a, reason=f"{head}: the beam never comes within {sweep.band_deg:g}° of the plane.")
+        return replace(a, reason=f"{head}: the beam never comes within {sweep.b_max_deg:g}° of the plane.")
     if a.usable_bins.size == 0:
         lost = ("the Sun" if row.sun_lost_fraction >= 0.999 else
                 "daylight" if sweep.night_only and row.daylight_lost_fraction > 0 else "the windows")

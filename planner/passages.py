@@ -1,14 +1,14 @@
 """Galactic-plane passages of a parked beam.
 
-A passage is an interval in which the beam centre lies within +/-band of the
-galactic plane (|b| <= band). Method:
+A passage is an interval in which the beam centre lies within +/-b_max of the
+galactic plane (|b| <= b_max). Method:
 
 1. Sample the sky track on a regular grid (``step_s``, 60 s by default).
-2. Runs of in-band samples give passages; each boundary is refined by
-   bisection on |b| - band to below 0.01 s (the issue asks for <= 1 s).
-3. Shallow grazes that dip into the band between two samples are caught by a
+2. Runs of in-strip samples give passages; each boundary is refined by
+   bisection on |b| - b_max to below 0.01 s (the issue asks for <= 1 s).
+3. Shallow grazes that dip into the strip between two samples are caught by a
    golden-section search around every local minimum of |b| that lies within
-   one step's worth of motion of the band edge (the beam moves at most
+   one step's worth of motion of the strip edge (the beam moves at most
    0.25 deg per minute).
 4. The peak is the time of minimum |b| (golden-section search).
 5. Each passage is then re-sampled every ``detail_step_s`` (10 s) for its
@@ -41,7 +41,7 @@ _GOLDEN = (np.sqrt(5.0) - 1.0) / 2.0
 
 @dataclass(frozen=True)
 class Passage:
-    """One passage of the beam through the |b| <= band strip. Angles in degrees."""
+    """One passage of the beam through the |b| <= b_max strip. Angles in degrees."""
 
     start_mjd: float  # UTC
     end_mjd: float
@@ -87,7 +87,7 @@ class PassageSearch:
 
     passages: list[Passage]
     b_min_abs_deg: float  # smallest |b| of the beam over the period
-    band_deg: float
+    b_max_deg: float
     start_mjd: float
     end_mjd: float
 
@@ -140,29 +140,29 @@ def _runs(mask: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
 
 
 def search_passages_mjd(site: Site, pointing: Pointing, start_mjd: float, end_mjd: float,
-                        band_deg: float | None = None, step_s: float = 60.0,
+                        b_max_deg: float | None = None, step_s: float = 60.0,
                         detail_step_s: float = 10.0,
                         solar_motion: str = "standard") -> PassageSearch:
-    """All passages in [start_mjd, end_mjd] (UTC) with |b| <= band_deg.
+    """All passages in [start_mjd, end_mjd] (UTC) with |b| <= b_max_deg.
 
     ``solar_motion`` names the LSR definition (see ``doppler.SOLAR_MOTIONS``).
     """
-    band = site.rules.band_deg if band_deg is None else float(band_deg)
+    b_max = site.rules.b_max_deg if b_max_deg is None else float(b_max_deg)
     n = max(2, int(np.ceil((end_mjd - start_mjd) * SECONDS_PER_DAY / step_s)) + 1)
     grid = np.linspace(start_mjd, end_mjd, n)
     step_days = grid[1] - grid[0]
     nodes = earth_nodes(start_mjd - 0.01, end_mjd + 0.01)
     track = FixedBeams(site, [pointing], nodes)
     abs_b = np.abs(track.b_deg(grid))
-    excess = lambda t: np.abs(track.b_deg(t)) - band  # noqa: E731
+    excess = lambda t: np.abs(track.b_deg(t)) - b_max  # noqa: E731
     tol = 0.01 / SECONDS_PER_DAY
 
-    inside = abs_b <= band
-    # Grazes between samples: a local minimum outside the band but within reach of it.
+    inside = abs_b <= b_max
+    # Grazes between samples: a local minimum outside the strip but within reach of it.
     reach = SIDEREAL_RATE_DEG_PER_S * step_days * SECONDS_PER_DAY
     i = np.arange(1, n - 1)
     cand = i[(~inside[i]) & (abs_b[i] <= abs_b[i - 1]) & (abs_b[i] <= abs_b[i + 1])
-             & (abs_b[i] - band < reach)]
+             & (abs_b[i] - b_max < reach)]
     t_min, f_min = _golden_min(excess, grid[cand - 1], grid[cand + 1], tol)
     graze = f_min <= 0
     graze_lo = _bisect(excess, grid[cand - 1][graze], t_min[graze], tol)
@@ -192,8 +192,8 @@ def search_passages_mjd(site: Site, pointing: Pointing, start_mjd: float, end_mj
     passages = _describe(site, pointing, track, starts, ends, peaks, peak_abs_b, clipped,
                          detail_step_s, solar_motion)
     closest = float(min(abs_b.min(), peak_abs_b.min() if peak_abs_b.size else np.inf,
-                        (f_min + band).min() if f_min.size else np.inf))
-    return PassageSearch(passages=passages, b_min_abs_deg=closest, band_deg=band,
+                        (f_min + b_max).min() if f_min.size else np.inf))
+    return PassageSearch(passages=passages, b_min_abs_deg=closest, b_max_deg=b_max,
                          start_mjd=start_mjd, end_mjd=end_mjd)
 
 
@@ -263,10 +263,10 @@ def _tidy(value: float) -> float | int:
 
 
 def find_passages(site: Site, pointing: Pointing, start: Time, end: Time,
-                  band_deg: float | None = None, solar_motion: str = "standard") -> PassageSearch:
-    """Passages of ``pointing`` between two astropy Times (band in degrees)."""
+                  b_max_deg: float | None = None, solar_motion: str = "standard") -> PassageSearch:
+    """Passages of ``pointing`` between two astropy Times (b_max in degrees)."""
     return search_passages_mjd(site, pointing, float(to_mjd_utc(start)[0]),
-                               float(to_mjd_utc(end)[0]), band_deg, solar_motion=solar_motion)
+                               float(to_mjd_utc(end)[0]), b_max_deg, solar_motion=solar_motion)
 
 
 def lsr_range_kms(search: PassageSearch) -> tuple[float, float] | None:

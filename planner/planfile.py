@@ -174,7 +174,7 @@ def drift_plan_document(plan: MonthPlan, settings: dict, model: RotationModel,
     for d, items in recordings_by_day.items():
         days[d]["recordings"] = [rec for rec, *_ in items]
         bins = sorted({int(b) for _, bs, *_ in items for b in bs})
-        setup = line_setup(bins, bw, sweep.band_deg, min(x[2] for x in items), max(x[3] for x in items),
+        setup = line_setup(bins, bw, sweep.b_max_deg, min(x[2] for x in items), max(x[3] for x in items),
                            site.receiver, model)
         a = setup.advice
         days[d]["tuning"] = {

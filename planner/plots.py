@@ -161,7 +161,7 @@ def _edges_from_centres(centres: np.ndarray) -> np.ndarray:
 
 def coverage_atlas(dec_deg, bin_starts_deg, usable_hours, *, reachable_dec=(-90.0, 90.0),
                    wanted_bins=(), covered_bins=(), site_name: str = "", period_text: str = "",
-                   band_deg: float = 3.0, bin_width_deg: float = 1.0, lower_dec_deg=None,
+                   b_max_deg: float = 3.0, bin_width_deg: float = 1.0, lower_dec_deg=None,
                    lower_hours=None) -> Figure:
     """Where a drifting beam crosses the galactic plane: declination x longitude atlas.
 
@@ -172,7 +172,7 @@ def coverage_atlas(dec_deg, bin_starts_deg, usable_hours, *, reachable_dec=(-90.
     deg: the site's declination range, the rest is hatched. ``wanted_bins`` /
     ``covered_bins``: bin starts (deg) shown in a strip above the map (wanted,
     and already covered by the observation log). The galactic plane b = 0 and
-    the band edges b = +/-``band_deg`` are drawn as declination curves.
+    the band edges b = +/-``b_max_deg`` are drawn as declination curves.
     ``lower_dec_deg`` (L,) / ``lower_hours`` (L, B): the same for settings below the
     pole (lower culmination, 12 h later), drawn as a second map under the first,
     over their own declination span, on the same colour scale.
@@ -218,7 +218,7 @@ def coverage_atlas(dec_deg, bin_starts_deg, usable_hours, *, reachable_dec=(-90.
     for axis in (ax, ax_low) if has_lower else (ax,):
         axis.plot(l_grid, plane_declination_deg(l_grid), color=OKABE_ITO["vermillion"], lw=1.8)
         for sign in (-1.0, 1.0):
-            band_dec = galactic_to_icrs_deg(l_grid, np.full_like(l_grid, sign * band_deg))[1]
+            band_dec = galactic_to_icrs_deg(l_grid, np.full_like(l_grid, sign * b_max_deg))[1]
             axis.plot(l_grid, band_dec, color=OKABE_ITO["vermillion"], lw=0.9, ls="--")
         axis.grid(True, color="0.85", lw=0.5)
         axis.set_axisbelow(True)
@@ -257,7 +257,7 @@ def coverage_atlas(dec_deg, bin_starts_deg, usable_hours, *, reachable_dec=(-90.
     handles = [
         Line2D([], [], color=OKABE_ITO["vermillion"], lw=1.8, label="galactic plane (b = 0°)"),
         Line2D([], [], color=OKABE_ITO["vermillion"], lw=0.9, ls="--",
-               label=f"band edges (b = ±{band_deg:g}°)"),
+               label=f"band edges (b = ±{b_max_deg:g}°)"),
         Patch(facecolor="none", edgecolor=_GREY, hatch="//",
               label=f"not reachable (outside Dec {lo:.1f}° to {hi:.1f}°)"),
         Patch(facecolor=OKABE_ITO["orange"], label="wanted bins"),
@@ -270,13 +270,13 @@ def coverage_atlas(dec_deg, bin_starts_deg, usable_hours, *, reachable_dec=(-90.
 # ---------------------------------------------------------------- sky track map
 
 
-def sky_track_map(track_l_deg, track_b_deg, *, band_deg: float, in_passage, sun_l_deg,
+def sky_track_map(track_l_deg, track_b_deg, *, b_max_deg: float, in_passage, sun_l_deg,
                   sun_b_deg, sun_radius_deg: float, title: str = "") -> Figure:
     """The beam-centre track of one parked declination on a galactic l-b map.
 
     ``track_l_deg``/``track_b_deg`` (N,) over a sidereal day; ``in_passage`` (N,)
     bool, True inside usable passages (drawn thick); the strip |b| <=
-    ``band_deg`` is shaded. ``sun_l_deg``/``sun_b_deg`` (S,): the Sun over the
+    ``b_max_deg`` is shaded. ``sun_l_deg``/``sun_b_deg`` (S,): the Sun over the
     period (e.g. daily), each with its avoidance circle of angular radius
     ``sun_radius_deg`` computed on the sphere (``avoidance_circle_deg``); the
     circles are one line artist with gid ``"sun-avoidance"``. Lines are broken
@@ -290,7 +290,7 @@ def sky_track_map(track_l_deg, track_b_deg, *, band_deg: float, in_passage, sun_
 
     fig = Figure(figsize=(11.0, 6.0), layout="constrained")
     ax = fig.subplots()
-    ax.axhspan(-band_deg, band_deg, color=OKABE_ITO["sky_blue"], alpha=0.35, lw=0)
+    ax.axhspan(-b_max_deg, b_max_deg, color=OKABE_ITO["sky_blue"], alpha=0.35, lw=0)
 
     l_line, b_line, m_line = _break_at_wrap(lon, lat, mask.astype(float))
     ax.plot(l_line, b_line, color=_GREY, lw=1.0)
@@ -313,7 +313,7 @@ def sky_track_map(track_l_deg, track_b_deg, *, band_deg: float, in_passage, sun_
     ax.set_axisbelow(True)
     ax.set_title(title or "Beam-centre track over one sidereal day")
     handles = [
-        Patch(facecolor=OKABE_ITO["sky_blue"], alpha=0.35, label=f"|b| ≤ {band_deg:g}° strip"),
+        Patch(facecolor=OKABE_ITO["sky_blue"], alpha=0.35, label=f"|b| ≤ {b_max_deg:g}° strip"),
         Line2D([], [], color=_GREY, lw=1.0, label="beam track (one sidereal day)"),
         Line2D([], [], color=OKABE_ITO["blue"], lw=3.0, label="usable passages"),
         Line2D([], [], ls="none", marker="o", color=OKABE_ITO["orange"],
@@ -726,7 +726,7 @@ def survey_sky(plan: dict) -> Figure:
     Targets (blue) and references (orange) in visiting order 1, 2, ...; an
     arrow joins each pointing to the next. A step across l = 0/360 is drawn
     the short way round, leaving one edge of the map and entering the other.
-    The |b| <= band strip from the site is shaded. Okabe-Ito colours.
+    The |b| <= b_max strip from the site is shaded. Okabe-Ito colours.
     """
     blocks = _survey_blocks(plan)
     site = plan["site"]
@@ -734,11 +734,11 @@ def survey_sky(plan: dict) -> Figure:
                if b.get("kind") not in ("slew", "stow") and b.get("l_deg") is not None]
     lon = np.array([b["l_deg"] for b in pointed], dtype=float) % 360.0
     lat = np.array([b["b_deg"] for b in pointed], dtype=float)
-    band = float(site.get("band_deg", 3.0))
+    b_max = float(site.get("b_max_deg", site.get("band_deg", 3.0)))  # band_deg: older plans
 
     fig = Figure(figsize=(11.0, 5.5), layout="constrained")
     ax = fig.subplots()
-    ax.axhspan(-band, band, color=OKABE_ITO["sky_blue"], alpha=0.3, lw=0)
+    ax.axhspan(-b_max, b_max, color=OKABE_ITO["sky_blue"], alpha=0.3, lw=0)
     for k in range(len(pointed) - 1):
         step = (lon[k + 1] - lon[k] + 180.0) % 360.0 - 180.0
         ends = [(lon[k], lon[k] + step)]
@@ -757,8 +757,8 @@ def survey_sky(plan: dict) -> Figure:
                     fontsize=8, fontweight="bold", zorder=4)
 
     _longitude_axis(ax)
-    b_lo = min(-band - 10.0, float(lat.min()) - 10.0) if lat.size else -20.0
-    b_hi = max(band + 10.0, float(lat.max()) + 10.0) if lat.size else 20.0
+    b_lo = min(-b_max - 10.0, float(lat.min()) - 10.0) if lat.size else -20.0
+    b_hi = max(b_max + 10.0, float(lat.max()) + 10.0) if lat.size else 20.0
     ax.set_ylim(max(-90.0, b_lo), min(90.0, b_hi))
     ax.set_ylabel("Galactic latitude b (deg)")
     ax.grid(True, color="0.85", lw=0.5)
@@ -770,7 +770,7 @@ def survey_sky(plan: dict) -> Figure:
         Line2D([], [], ls="none", marker="o", color=OKABE_ITO["orange"],
                markeredgecolor="black", label="reference"),
         Line2D([], [], color="0.35", marker=">", label="next pointing (numbers: order)"),
-        Patch(facecolor=OKABE_ITO["sky_blue"], alpha=0.3, label=f"|b| ≤ {band:g}° strip"),
+        Patch(facecolor=OKABE_ITO["sky_blue"], alpha=0.3, label=f"|b| ≤ {b_max:g}° strip"),
     ]
     unscheduled = plan.get("unscheduled") or []
     if unscheduled:

@@ -52,7 +52,7 @@ class Pointing:
             return "north"
         return f"azimuth {self.az_deg:.1f}"
 
-    def summary(self, beamwidth_deg: float, band_deg: float) -> dict:
+    def summary(self, beamwidth_deg: float, b_max_deg: float) -> dict:
         """The ``pointing`` object of JSON outputs."""
         return {
             "alt_deg": round(self.alt_deg, 4),
@@ -63,7 +63,7 @@ class Pointing:
             "given_as": self.given_as,
             "culmination": self.culmination,
             "beamwidth_deg": round(beamwidth_deg, 3),
-            "band_deg": band_deg,
+            "b_max_deg": b_max_deg,
         }
 
 

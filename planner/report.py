@@ -95,7 +95,7 @@ def crossings_document(site: Site, pointing: Pointing, search: PassageSearch,
     return {
         "schema": CROSSINGS_SCHEMA,
         "site": site.summary(),
-        "pointing": pointing.summary(site.dish.beamwidth_deg, search.band_deg),
+        "pointing": pointing.summary(site.dish.beamwidth_deg, search.b_max_deg),
         "period": period_summary(search.start_mjd, search.end_mjd, tz),
         "closest_b_abs_deg": round(search.b_min_abs_deg, 3),
         "lsr_corr_min_kms": None if rng is None else round(rng[0], 3),
@@ -165,13 +165,13 @@ def crossings_renderable(site: Site, pointing: Pointing, search: PassageSearch, 
     head.append(f"  ({site.latitude_deg:+.3f}°, {site.longitude_deg:+.3f}°, {site.timezone})\n")
     head.append(f"Pointing: elevation {pointing.alt_deg:.2f}° azimuth {pointing.az_deg:.1f}°"
                 f" = HA {pointing.ha_deg:+.2f}°, Dec {pointing.dec_deg:+.2f}° (of date)\n")
-    head.append(f"Beam {dish.beamwidth_deg:.2f}° HPBW, band |b| ≤ {search.band_deg:g}°, "
+    head.append(f"Beam {dish.beamwidth_deg:.2f}° HPBW, strip |b| ≤ {search.b_max_deg:g}°, "
                 f"Sun limit {site.rules.sun_min_sep_deg:g}°\n")
     head.append(f"Period {first:%Y-%m-%d %H:%M} – {last:%Y-%m-%d %H:%M} local "
                 f"({search.end_mjd - search.start_mjd:.1f} days)")
     feed = sun_approach_text(site, approaches)
     if not search.passages:
-        note = Text(f"\nNo passage: the beam never comes within {search.band_deg:g}° of the "
+        note = Text(f"\nNo passage: the beam never comes within {search.b_max_deg:g}° of the "
                     f"galactic plane (closest |b| = {search.b_min_abs_deg:.2f}°).", style="yellow")
         return Group(head, note, feed)
 
@@ -271,7 +271,7 @@ def _round_floats(obj, digits=4):
 
 
 def tune_document(site: Site, setup, model, lsr_definition: str, start_mjd: float, end_mjd: float,
-                  pointing: Pointing | None = None, band_deg: float | None = None, l_bins=None,
+                  pointing: Pointing | None = None, b_max_deg: float | None = None, l_bins=None,
                   depth=None, drift_s: float | None = None, target=None, pointed=None,
                   plan_source=None) -> dict:
     """Receiver set-up advice as a JSON-ready document (frequencies MHz, velocities km/s)."""
@@ -290,7 +290,7 @@ def tune_document(site: Site, setup, model, lsr_definition: str, start_mjd: floa
         "tuning": advice,
     }
     if pointing is not None:
-        doc["pointing"] = pointing.summary(site.dish.beamwidth_deg, band_deg)
+        doc["pointing"] = pointing.summary(site.dish.beamwidth_deg, b_max_deg)
         doc["l_bins"] = list(l_bins)
         doc["l_ranges"] = compact_ranges(l_bins)
         doc["sensitivity"] = {
@@ -419,7 +419,7 @@ def park_document(sweep, advice, want_text: str, target_minutes: float, log_sour
     return {
         "schema": PARK_SCHEMA, "site": site.summary(),
         "period": period_summary(sweep.start_mjd, sweep.end_mjd, site.tz),
-        "settings": {"band_deg": sweep.band_deg, "bin_width_deg": sweep.bin_width_deg,
+        "settings": {"b_max_deg": sweep.b_max_deg, "bin_width_deg": sweep.bin_width_deg,
                      "want": want_text or "0-360", "target_minutes": target_minutes,
                      "log": log_source, "night_only": sweep.night_only,
                      "night": night if sweep.night_only else None,
@@ -453,7 +453,7 @@ def park_renderable(doc: dict, top: int):
     head.append(f"  ({s['latitude_deg']:+.2f}°, {s['longitude_deg']:+.2f}°)  "
                 f"{doc['period']['start_local'][:10]} – {doc['period']['end_local'][:10]}\n")
     night = st.get("night") or "horizon"
-    head.append(f"Beam {st['beamwidth_deg']:.2f}°, band |b| ≤ {st['band_deg']:g}°, wanted l {st['want']}, "
+    head.append(f"Beam {st['beamwidth_deg']:.2f}°, strip |b| ≤ {st['b_max_deg']:g}°, wanted l {st['want']}, "
                 f"target {st['target_minutes']:g} min per bin"
                 + (f", night only ({night})" if st["night_only"] else "")
                 + (f", windows: {'; '.join(st['windows'])}" if st["windows"] else "")

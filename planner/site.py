@@ -6,7 +6,7 @@ A site file has four tables (all angles in degrees, longitude east-positive):
 ``[dish]``      diameter_m, beamwidth_deg (optional), mount, elevation limits,
                 horizon mask, and for ``altaz`` mounts azimuth limits and slew rates
 ``[receiver]``  bandwidth_mhz, channels, tsys_k
-``[rules]``     sun_min_sep_deg, sun_hazard_deg, moon_min_sep_deg, band_deg, bin_width_deg
+``[rules]``     sun_min_sep_deg, sun_hazard_deg, moon_min_sep_deg, b_max_deg, bin_width_deg
 
 plus an optional ``[pointing]`` (alt_deg/az_deg or dec_deg) used when a command
 is given no pointing. The full field list is ``FIELDS`` below and docs/site-files.md.
@@ -94,12 +94,12 @@ DEFAULT_SUN_HAZARD_DEG = 10.0
 
 @dataclass(frozen=True)
 class Rules:
-    """Survey rules (deg): Sun data-quality and feed-safety limits, Moon limit, |b| band, bin width."""
+    """Survey rules (deg): Sun data-quality and feed-safety limits, Moon limit, |b| strip half-width, bin width."""
 
     sun_min_sep_deg: float = 15.0
     sun_hazard_deg: float = DEFAULT_SUN_HAZARD_DEG
     moon_min_sep_deg: float = 0.0
-    band_deg: float = 3.0
+    b_max_deg: float = 3.0
     bin_width_deg: float = 1.0
 
 
@@ -137,7 +137,7 @@ class Site:
             "elevation_max_deg": self.dish.elevation_max_deg,
             "sun_min_sep_deg": self.rules.sun_min_sep_deg,
             "sun_hazard_deg": self.rules.sun_hazard_deg,
-            "band_deg": self.rules.band_deg,
+            "b_max_deg": self.rules.b_max_deg,
         }
 
 
@@ -185,7 +185,7 @@ FIELDS: dict[str, dict[str, _Spec]] = {
         "sun_min_sep_deg": _Spec(_NUM, False, 0, 180, default=15.0),
         "sun_hazard_deg": _Spec(_NUM, False, 0, 45, lo_open=True, default=DEFAULT_SUN_HAZARD_DEG),
         "moon_min_sep_deg": _Spec(_NUM, False, 0, 180, default=0.0),
-        "band_deg": _Spec(_NUM, False, 0, 90, lo_open=True, default=3.0),
+        "b_max_deg": _Spec(_NUM, False, 0, 90, lo_open=True, default=3.0),
         "bin_width_deg": _Spec(_NUM, False, 0, 30, lo_open=True, default=1.0),
     },
     "pointing": {
@@ -202,12 +202,19 @@ def _hint(word: str, choices) -> str:
     return f" (did you mean '{close[0]}'?)" if close else ""
 
 
+# Fields renamed since earlier versions: (table, old name) -> new name.
+RENAMED = {("rules", "band_deg"): "b_max_deg"}
+
+
 def _check_table(src: str, table: str, raw: dict) -> dict:
     """Validate one table against FIELDS; return it with defaults filled in."""
     specs = FIELDS[table]
     if not isinstance(raw, dict):
         raise UserError(f"{src}: [{table}] must be a table")
     for key in raw:
+        if (table, key) in RENAMED:
+            raise UserError(f"{src}: [{table}] {key} is now called {RENAMED[table, key]} "
+                            "(the half-width of the |b| strip); rename it in this file")
         if key not in specs:
             raise UserError(f"{src}: [{table}] unknown field '{key}'{_hint(key, specs)}")
     out = {}

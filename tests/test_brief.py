@@ -32,7 +32,7 @@ HOLLOWMERE_SITE = {
     "name": "Hollowmere Amateur Radio Astronomy Club", "latitude_deg": 53.42,
     "longitude_deg": -2.07, "height_m": 180, "timezone": "Europe/London", "mount": "transit",
     "diameter_m": 3.0, "beamwidth_deg": 4.93, "elevation_min_deg": 12, "elevation_max_deg": 90,
-    "sun_min_sep_deg": 20, "band_deg": 3,
+    "sun_min_sep_deg": 20, "b_max_deg": 3,
 }
 
 
@@ -123,7 +123,7 @@ def hollowmere_plan() -> dict:
         "period": {"start_utc": "2027-03-26T00:00:00Z", "end_utc": "2027-03-29T23:00:00Z",
                    "start_local": "2027-03-26T00:00:00+00:00",
                    "end_local": "2027-03-30T00:00:00+01:00", "days": 3.9583},
-        "settings": {"band_deg": 3.0, "bin_width_deg": 1.0, "want": [[30, 90], [120, 140]],
+        "settings": {"b_max_deg": 3.0, "bin_width_deg": 1.0, "want": [[30, 90], [120, 140]],
                      "target_minutes": 60.0, "target_rms_k": None, "night_only": False,
                      "windows": ["Mon–Fri 19:00–23:30", "Sat–Sun 10:00–23:59"],
                      "max_reparks_per_day": 1, "repark_minutes": 15, "sun_min_sep_deg": 20.0,
@@ -167,7 +167,7 @@ def saltbush_survey() -> dict:
     site = {"name": "Saltbush Ridge Secondary School", "latitude_deg": -34.93,
             "longitude_deg": 138.60, "height_m": 60, "timezone": "Australia/Adelaide",
             "mount": "altaz", "diameter_m": 2.0, "beamwidth_deg": 7.5, "elevation_min_deg": 15,
-            "elevation_max_deg": 88, "sun_min_sep_deg": 25, "band_deg": 4}
+            "elevation_max_deg": 88, "sun_min_sep_deg": 25, "b_max_deg": 4}
     return {
         "schema": "hiplan.survey/1", "kind": "survey", "site": site,
         "period": {"start_utc": "2027-03-01T13:30:00Z", "end_utc": "2027-03-03T13:30:00Z",

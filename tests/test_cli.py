@@ -27,7 +27,7 @@ def test_crossings_json_schema(capsys):
     for key in ("name", "latitude_deg", "longitude_deg", "height_m", "timezone",
                 "elevation_min_deg", "sun_min_sep_deg"):
         assert key in doc["site"]
-    for key in ("alt_deg", "az_deg", "dec_deg", "beamwidth_deg", "band_deg", "dec_frame"):
+    for key in ("alt_deg", "az_deg", "dec_deg", "beamwidth_deg", "b_max_deg", "dec_frame"):
         assert key in doc["pointing"]
     assert len(doc["passages"]) == 4
     for p in doc["passages"]:
@@ -109,8 +109,8 @@ BAD = [
     (["crossings", "--days", "0"], "--days: 0 is outside [1, 731]"),
     (["crossings", "--days", "3650"], "--days: 3650 is outside [1, 731]"),
     (["crossings", "--start", "2027-02-30"], "--start: '2027-02-30' is not a date"),
-    (["crossings", "--band", "0"], "--band: 0.0 is outside (0, 90)"),
-    (["crossings", "--band", "95"], "--band: 95.0 is outside (0, 90)"),
+    (["crossings", "--b-max", "0"], "--b-max: 0.0 is outside (0, 90)"),
+    (["crossings", "--b-max", "95"], "--b-max: 95.0 is outside (0, 90)"),
     (["crossings", "--dec", "abc"], "--dec: 'abc' is not a number"),
     (["crossings", "--dec", "20", "--elevation", "30"], "give one pointing, not --dec and --elevation"),
     (["crossings", "--alt", "30"], "--alt and --az must be given together"),

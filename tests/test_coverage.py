@@ -37,7 +37,7 @@ def test_covered_bins_match_astropy_brute_force(request, site_name, dec):
     p = on_meridian_at_dec(site, dec)
     days = 3
     ours = sweep(site, [p], START, START + days).rows[0]
-    ref_bins, ref_entries = _astropy_bins(site, p, START, days, site.rules.band_deg)
+    ref_bins, ref_entries = _astropy_bins(site, p, START, days, site.rules.b_max_deg)
     ours_bins = set(np.flatnonzero(ours.bin_total_s > 0))
     # 1-minute sampling can miss a bin the beam only clips for < 1 min at a passage edge,
     # so allow the two sets to differ only in bins where we spend under 60 s in total.

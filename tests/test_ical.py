@@ -51,7 +51,7 @@ HOLLOWMERE_SITE = {
     "name": "Hollowmere Amateur Radio Astronomy Club", "latitude_deg": 53.42,
     "longitude_deg": -2.07, "height_m": 180, "timezone": "Europe/London", "mount": "transit",
     "diameter_m": 3.0, "beamwidth_deg": 4.93, "elevation_min_deg": 12, "elevation_max_deg": 90,
-    "sun_min_sep_deg": 20, "band_deg": 3,
+    "sun_min_sep_deg": 20, "b_max_deg": 3,
 }
 
 # Transit park for dec +20 on the south meridian at latitude 53.42:
@@ -83,7 +83,7 @@ def drift_plan() -> dict:
         "period": {"start_utc": "2027-03-27T00:00:00Z", "end_utc": "2027-03-30T23:00:00Z",
                    "start_local": "2027-03-27T00:00:00+00:00",
                    "end_local": "2027-03-31T00:00:00+01:00", "days": 4},
-        "settings": {"band_deg": 3.0, "bin_width_deg": 1.0, "want": [[30, 130], [350, 10]],
+        "settings": {"b_max_deg": 3.0, "bin_width_deg": 1.0, "want": [[30, 130], [350, 10]],
                      "target_minutes": 60.0, "target_rms_k": None, "night_only": False,
                      "windows": [], "max_reparks_per_day": 1, "repark_minutes": 15,
                      "sun_min_sep_deg": 20.0, "lsr_definition": "standard",
@@ -146,7 +146,7 @@ SALTBUSH_SITE = {
     "name": "Saltbush Ridge Secondary School", "latitude_deg": -34.93, "longitude_deg": 138.60,
     "height_m": 60, "timezone": "Australia/Adelaide", "mount": "altaz", "diameter_m": 2.0,
     "beamwidth_deg": 7.5, "elevation_min_deg": 15, "elevation_max_deg": 88,
-    "sun_min_sep_deg": 25, "band_deg": 3,
+    "sun_min_sep_deg": 25, "b_max_deg": 3,
 }
 
 

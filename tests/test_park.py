@@ -103,7 +103,7 @@ def test_extreme_latitudes(club, lat, expect_lo, expect_hi):
         assert np.isfinite(a.score) and a.reason
         # Beyond the plane's reach plus the band (margin 0.5 deg: these are declinations of
         # date, up to 0.2 deg from J2000 by precession) the beam never meets the strip.
-        if abs(a.pointing.dec_deg) > PLANE_DEC_LIMIT_DEG + site.rules.band_deg + 0.5:
+        if abs(a.pointing.dec_deg) > PLANE_DEC_LIMIT_DEG + site.rules.b_max_deg + 0.5:
             assert "never comes within" in a.reason
 
 

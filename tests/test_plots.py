@@ -29,7 +29,7 @@ SITE = {
     "longitude_deg": -2.07, "height_m": 180.0, "timezone": "Europe/London",
     "mount": "transit", "diameter_m": 3.0, "beamwidth_deg": 4.93,
     "elevation_min_deg": 12.0, "elevation_max_deg": 90.0, "sun_min_sep_deg": 20.0,
-    "band_deg": 3.0,
+    "b_max_deg": 3.0,
 }
 
 
@@ -94,7 +94,7 @@ def drift_plan() -> dict:
         "period": {"start_utc": "2027-03-26T00:00:00Z", "end_utc": "2027-03-29T23:00:00Z",
                    "start_local": "2027-03-26T00:00:00+00:00",
                    "end_local": "2027-03-30T00:00:00+01:00", "days": 4},
-        "settings": {"band_deg": 3.0, "bin_width_deg": 1.0, "want": [[50, 80], [120, 130]],
+        "settings": {"b_max_deg": 3.0, "bin_width_deg": 1.0, "want": [[50, 80], [120, 130]],
                      "target_minutes": 60.0, "target_rms_k": None, "night_only": False,
                      "windows": ["Mon–Fri 19:00–23:30", "Sat 21:00-02:00"],
                      "max_reparks_per_day": 1, "repark_minutes": 15, "sun_min_sep_deg": 20.0,
@@ -189,7 +189,7 @@ def test_coverage_atlas_builds_and_draws_the_plane(tmp_path, rng):
     hours = np.where(rng.random((dec.size, starts.size)) < 0.2, rng.random((dec.size, 360)) * 6, 0)
     fig = plots.coverage_atlas(dec, starts, hours, reachable_dec=(-24.0, 90.0),
                                wanted_bins=range(30, 90), covered_bins=range(40, 52),
-                               site_name=SITE["name"], period_text="March 2027", band_deg=3.0)
+                               site_name=SITE["name"], period_text="March 2027", b_max_deg=3.0)
     _check_saves(fig, tmp_path, "atlas")
     _check_labels_and_legend(fig)
     main = next(ax for ax in fig.axes if "Declination" in ax.get_ylabel())
@@ -234,7 +234,7 @@ def test_sky_track_map(tmp_path):
     # Track of a parked Dec = +30 deg beam over a sidereal day: RA runs through 360 deg.
     ra = np.linspace(0.0, 360.0, 1441)
     l_deg, b_deg = icrs_to_galactic_deg(ra, np.full_like(ra, 30.0))
-    fig = plots.sky_track_map(l_deg, b_deg, band_deg=3.0, in_passage=np.abs(b_deg) <= 3.0,
+    fig = plots.sky_track_map(l_deg, b_deg, b_max_deg=3.0, in_passage=np.abs(b_deg) <= 3.0,
                               sun_l_deg=SUNS_L, sun_b_deg=SUNS_B, sun_radius_deg=RADIUS_DEG,
                               title="Dec +30°, March 2027")
     _check_saves(fig, tmp_path, "skytrack")

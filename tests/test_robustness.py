@@ -137,7 +137,7 @@ _values = st.one_of(st.none(), st.booleans(), st.integers(-10**6, 10**6), st.flo
 @settings(max_examples=200, deadline=None, suppress_health_check=[HealthCheck.too_slow])
 @given(table=st.sampled_from(["site", "dish", "receiver", "rules", "pointing"]),
        key=st.sampled_from(["name", "latitude_deg", "longitude_deg", "height_m", "timezone", "diameter_m",
-                            "mount", "horizon", "bandwidth_mhz", "channels", "tsys_k", "band_deg",
+                            "mount", "horizon", "bandwidth_mhz", "channels", "tsys_k", "b_max_deg",
                             "alt_deg", "dec_deg", "bogus"]),
        value=_values)
 def test_site_fields_never_crash(table, key, value):

@@ -89,12 +89,13 @@ BAD_FIELDS = [
     ("receiver", "channels", 0, r"channels = 0 is out of range"),
     ("receiver", "tsys_k", 0, r"tsys_k = 0 is out of range"),
     ("receiver", "tsys_k", float("nan"), r"tsys_k must be finite"),
-    ("rules", "band_deg", 0, r"band_deg = 0 is out of range"),
-    ("rules", "band_deg", 95, r"band_deg = 95 is out of range"),
+    ("rules", "b_max_deg", 0, r"b_max_deg = 0 is out of range"),
+    ("rules", "b_max_deg", 95, r"b_max_deg = 95 is out of range"),
     ("rules", "sun_min_sep_deg", -1, r"sun_min_sep_deg = -1 is out of range"),
     ("rules", "sun_hazard_deg", 0, r"sun_hazard_deg = 0 is out of range \(0, 45\]"),
     ("rules", "sun_hazard_deg", 60, r"sun_hazard_deg = 60 is out of range"),
     ("rules", "sun_hazard", 5, r"did you mean 'sun_hazard_deg'"),
+    ("rules", "band_deg", 3, r"\[rules\] band_deg is now called b_max_deg"),
     ("rules", "bin_width_deg", "1", r"bin_width_deg must be a number"),
 ]
 

@@ -295,7 +295,7 @@ def test_cli_json_document(capsys):
     assert doc["schema"] == "hiplan.survey/1" and doc["kind"] == "survey"
     for key in ("name", "latitude_deg", "longitude_deg", "height_m", "timezone", "mount",
                 "diameter_m", "beamwidth_deg", "elevation_min_deg", "elevation_max_deg",
-                "sun_min_sep_deg", "band_deg"):
+                "sun_min_sep_deg", "b_max_deg"):
         assert key in doc["site"]
     assert set(doc["period"]) == {"start_utc", "end_utc", "start_local", "end_local", "days"}
     for key in ("night_only", "windows", "sun_min_sep_deg", "moon_min_sep_deg", "alarm_minutes",

@@ -88,6 +88,12 @@ def add_target(p):
     g.add_argument("--b", type=number(float, "--b", -90, 90), help="galactic latitude (deg), with --l")
 
 
+def add_b_max(p):
+    p.add_argument("--b-max", type=number(float, "--b-max", 0, 90, lo_open=True, hi_open=True),
+                   metavar="DEG", help="half-width of the galactic-latitude strip |b| <= DEG that "
+                                       "counts as a plane passage (default: the site's b_max_deg)")
+
+
 def add_night(p, what: str = "count only passages"):
     """--night-only and --night KIND (which Sun altitude ends the day)."""
     from ..avoidance import DEFAULT_NIGHT, NIGHT_SUN_ALTITUDE_DEG

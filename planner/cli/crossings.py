@@ -8,7 +8,7 @@ from ..passages import search_passages_mjd
 from ..report import PASSAGE_FIELDS, crossings_document, crossings_renderable, to_csv, to_json
 from ..site import load_site
 from ..sunsafety import sun_approaches
-from .common import (add_output, add_period, add_pointing, add_site, emit, number, period_span,
+from .common import (add_b_max, add_output, add_period, add_pointing, add_site, emit, number, period_span,
                      resolve_pointing)
 
 NAME = "crossings"
@@ -19,8 +19,7 @@ def add_arguments(p) -> None:
     add_site(p)
     add_pointing(p)
     add_period(p, default_days=7)
-    p.add_argument("--band", type=number(float, "--band", 0, 90, lo_open=True, hi_open=True),
-                   help="half-width of the |b| strip (deg; default from the site rules)")
+    add_b_max(p)
     add_output(p)
 
 
@@ -30,7 +29,7 @@ def run(args, console: Console) -> int:
         check_writable(args.output, args.force)
     pointing = resolve_pointing(args, site)
     start_mjd, end_mjd = period_span(args, site)
-    search = search_passages_mjd(site, pointing, start_mjd, end_mjd, args.band)
+    search = search_passages_mjd(site, pointing, start_mjd, end_mjd, args.b_max)
     approaches = sun_approaches(site, [pointing], start_mjd, end_mjd)
     if args.format == "table":
         emit(args, console, None, crossings_renderable(site, pointing, search, approaches))

@@ -17,7 +17,7 @@ from ..planfile import drift_plan_document
 from ..report import month_renderable, to_json
 from ..site import load_site
 from ..timebase import local_day_span, parse_day
-from .common import (add_lsr_definition, add_night, add_site, current_setting, emit, figure_bytes,
+from .common import (add_b_max, add_lsr_definition, add_night, add_site, current_setting, emit, figure_bytes,
                      load_windows, night_setting, note, number, today_at)
 
 NAME = "month"
@@ -52,8 +52,7 @@ def add_arguments(p) -> None:
                    help="declination the dish is parked at now (default: the site's [pointing])")
     p.add_argument("--step", type=number(float, "--step", 0, 30, lo_open=True),
                    help="declination step (deg; default half the beamwidth)")
-    p.add_argument("--band", type=number(float, "--band", 0, 90, lo_open=True, hi_open=True),
-                   help="half-width of the |b| strip (deg; default from the site rules)")
+    add_b_max(p)
     p.add_argument("--allow-sun-hazard", action="store_true",
                    help="plan even settings and moves that bring the Sun within the site's "
                         "sun_hazard_deg of the feed (not advised): every such day then gets a "
@@ -106,7 +105,7 @@ def build_plan(args, site):
     if not pointings:
         raise UserError(f"{site.source}: no declination is reachable with this dish's limits")
     night_only, night_alt, night_kind = night_setting(args)
-    result = sweep(site, pointings, start_mjd, end_mjd, args.band, night_only,
+    result = sweep(site, pointings, start_mjd, end_mjd, args.b_max, night_only,
                    intervals if args.record_in_windows else None, args.lsr_def, per_occurrence=True,
                    night_sun_alt_deg=night_alt)
     if not any(r.bin_usable_s.sum() > 0 for r in result.rows):
@@ -122,7 +121,7 @@ def build_plan(args, site):
     plan = plan_month(result, goal, slots, start_row, args.repark_minutes, args.min_days_between_moves,
                       guard)
     settings = {
-        "band_deg": result.band_deg, "bin_width_deg": bw,
+        "b_max_deg": result.b_max_deg, "bin_width_deg": bw,
         "want": _want_ranges(args.want), "target_minutes": round(target, 3),
         "target_rms_k": args.target_rms, "night_only": night_only,
         "night": night_kind if night_only else None,

@@ -12,7 +12,7 @@ from ..park import DEFAULT_TARGET_MINUTES, advise, candidate_pointings, parse_wa
 from ..report import PARK_FIELDS, park_document, park_renderable, to_csv, to_json
 from ..site import load_site
 from ..sunsafety import sun_approaches
-from .common import (add_lsr_definition, add_night, add_output, add_period, add_site,
+from .common import (add_b_max, add_lsr_definition, add_night, add_output, add_period, add_site,
                      current_setting, emit, figure_bytes, load_windows, night_setting, number,
                      period_span)
 
@@ -25,8 +25,7 @@ def add_arguments(p) -> None:
     add_period(p, default_days=30)
     p.add_argument("--step", type=number(float, "--step", 0, 30, lo_open=True),
                    help="declination step (deg; default half the beamwidth)")
-    p.add_argument("--band", type=number(float, "--band", 0, 90, lo_open=True, hi_open=True),
-                   help="half-width of the |b| strip (deg; default from the site rules)")
+    add_b_max(p)
     p.add_argument("--want", help="wanted longitude ranges, e.g. 30-90,120-140 (default all)")
     p.add_argument("--log", help="observation log (CSV) of what is already covered")
     p.add_argument("--target-minutes", type=number(float, "--target-minutes", 0, 1e5, lo_open=True),
@@ -61,7 +60,7 @@ def run(args, console: Console) -> int:
         raise UserError(f"{site.source}: no declination is reachable with this dish's elevation "
                         "limits and horizon mask")
     night_only, night_alt, night_kind = night_setting(args)
-    result = sweep(site, pointings, start_mjd, end_mjd, args.band, night_only, intervals,
+    result = sweep(site, pointings, start_mjd, end_mjd, args.b_max, night_only, intervals,
                    args.lsr_def, night_sun_alt_deg=night_alt)
     approaches = sun_approaches(site, pointings, start_mjd, end_mjd)
     advice = advise(result, want, done, args.target_minutes, approaches)
@@ -117,7 +116,7 @@ def atlas_figure(result, want, done, target_minutes, coverage_atlas):
         lower_hours=np.array([r.bin_usable_s / 3600.0 for r in lower]).reshape(len(lower), -1),
         wanted_bins=result.bin_starts_deg[want], covered_bins=result.bin_starts_deg[done >= target_minutes],
         site_name=result.site.name, period_text=f"{period['start_local'][:10]} – {period['end_local'][:10]}",
-        band_deg=result.band_deg, bin_width_deg=bw)
+        b_max_deg=result.b_max_deg, bin_width_deg=bw)
 
 
 def sky_figure(result, best, sky_track_map):
@@ -131,12 +130,12 @@ def sky_figure(result, best, sky_track_map):
     occ = best.coverage.occurrences
     # A sample is in a usable passage when its longitude bin gets usable time.
     bins = (np.floor(track.l_deg / result.bin_width_deg).astype(int)) % best.coverage.bin_usable_s.size
-    in_passage = (np.abs(track.b_deg) <= result.band_deg) & (best.coverage.bin_usable_s[bins] > 0)
+    in_passage = (np.abs(track.b_deg) <= result.b_max_deg) & (best.coverage.bin_usable_s[bins] > 0)
     days = np.arange(result.start_mjd, result.end_mjd + 1e-9, 1.0)
     sun_l, sun_b = sun_galactic_deg(days)
     p = best.pointing
     title = (f"{site.name}: Dec {p.dec_deg:+.1f}° (elevation {p.alt_deg:.1f}°), "
              f"{len(occ.start_mjd)} passages")
-    return sky_track_map(track.l_deg, track.b_deg, band_deg=result.band_deg, in_passage=in_passage,
+    return sky_track_map(track.l_deg, track.b_deg, b_max_deg=result.b_max_deg, in_passage=in_passage,
                          sun_l_deg=sun_l, sun_b_deg=sun_b, sun_radius_deg=site.rules.sun_min_sep_deg,
                          title=title)

@@ -16,7 +16,7 @@ from ..site import load_site
 from ..spectral import tuning_advice
 from ..timebase import parse_instant
 from ..tuning import LineSetup, drift_depth, line_setup
-from .common import (add_lsr_definition, add_output, add_period, add_pointing, add_site, add_target,
+from .common import (add_b_max, add_lsr_definition, add_output, add_period, add_pointing, add_site, add_target,
                      emit, number, period_span, resolve_pointing, sky_target)
 
 NAME = "tune"
@@ -28,8 +28,7 @@ def add_arguments(p) -> None:
     add_target(p)
     add_pointing(p)
     add_period(p, default_days=30)
-    p.add_argument("--band", type=number(float, "--band", 0, 90, lo_open=True, hi_open=True),
-                   help="half-width of the |b| strip (deg; default from the site rules)")
+    add_b_max(p)
     p.add_argument("--rotation", default="iau1985",
                    help="rotation model: iau1985 (default), reid2014, reid2019, brand-blitz1993")
     p.add_argument("--dispersion", type=number(float, "--dispersion", 0, 100),
@@ -59,12 +58,12 @@ def run(args, console: Console) -> int:
     if args.plan:
         return _run_plan(args, console, model)
     start_mjd, end_mjd = period_span(args, site)
-    band = site.rules.band_deg if args.band is None else args.band
+    b_max = site.rules.b_max_deg if args.b_max is None else args.b_max
     target = sky_target(args)
     factor = 2.0 if args.switched else 1.0
     if target is None:
         pointing = resolve_pointing(args, site)
-        search = search_passages_mjd(site, pointing, start_mjd, end_mjd, band,
+        search = search_passages_mjd(site, pointing, start_mjd, end_mjd, b_max,
                                      solar_motion=args.lsr_def)
         usable = [p for p in search.passages if p.sun_ok]
         if args.passage is not None:
@@ -77,16 +76,16 @@ def run(args, console: Console) -> int:
                                 f"({chosen.sun_sep_min_deg:.0f}°)")
             usable = [chosen]
         if not usable:
-            why = ("the beam never comes within the band of the plane" if not search.passages
+            why = ("the beam never comes within the b_max of the plane" if not search.passages
                    else "every passage is too close to the Sun")
             raise UserError(f"nothing to tune for: {why} in this period")
         bins = sorted({b for p in usable for b in p.l_bins})
-        setup = line_setup(bins, site.rules.bin_width_deg, band,
+        setup = line_setup(bins, site.rules.bin_width_deg, b_max,
                            min(p.lsr_corr_min_kms for p in usable),
                            max(p.lsr_corr_max_kms for p in usable), site.receiver, model)
         depth = drift_depth(usable, end_mjd - start_mjd, site.receiver, args.target_rms, factor)
         doc = tune_document(site, setup, model, args.lsr_def, start_mjd, end_mjd,
-                            pointing=pointing, band_deg=band, l_bins=bins, depth=depth,
+                            pointing=pointing, b_max_deg=b_max, l_bins=bins, depth=depth,
                             drift_s=float(drift_time_s(site.dish.beamwidth_deg, pointing.dec_deg)))
     else:
         ra, dec = target
@@ -132,7 +131,7 @@ def _run_plan(args, console: Console, model) -> int:
     if not items:
         raise UserError(f"{args.plan}: the plan has nothing to record, so nothing to tune for")
     receiver = site.receiver
-    setup = line_setup(bins, bw, doc["site"].get("band_deg", 3.0),
+    setup = line_setup(bins, bw, doc["site"].get("b_max_deg", doc["site"].get("band_deg", 3.0)),
                        min(r["lsr_corr_min_kms"] for r in items),
                        max(r["lsr_corr_max_kms"] for r in items), receiver, model)
     start_mjd, end_mjd = (parse_instant(doc["period"][k], f"{args.plan} period") for k in
