@@ -25,7 +25,13 @@ demo: $(VENV)/.stamp-run
 test: $(VENV)/.stamp-test
 	$(PY) -m pytest -q
 
-bench: $(VENV)/.stamp-test
+$(VENV)/.stamp-bench: pyproject.toml
+	$(PYTHON) -m venv $(VENV)
+	$(PY) -m pip install --quiet --upgrade pip
+	$(PY) -m pip install --quiet -e '.[bench]'
+	touch $@ $(VENV)/.stamp-test $(VENV)/.stamp-run
+
+bench: $(VENV)/.stamp-bench
 	$(PY) benchmarks/run_all.py
 
 clean:

@@ -14,8 +14,8 @@ HERE = Path(__file__).resolve().parent
 sys.path.insert(0, str(HERE.parent))
 
 from planner.coverage import sweep  # noqa: E402
-from planner.month import (Goal, done_count, evaluate_fixed, move_slots, plan_month,  # noqa: E402
-                           sun_guard)
+from planner.month import Goal, done_count, evaluate_fixed, move_slots, plan_month  # noqa: E402
+from planner.monthsafety import sun_guard  # noqa: E402
 from planner.sunsafety import sun_approaches  # noqa: E402
 from planner.obslog import coverage_minutes, read_log  # noqa: E402
 from planner.park import advise, candidate_pointings, parse_want  # noqa: E402

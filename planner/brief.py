@@ -21,8 +21,10 @@ from datetime import date, datetime, timedelta
 from urllib.parse import quote
 
 from .errors import UserError
-from .planfile import DRIFT_SCHEMA, PLAN_SCHEMAS, SURVEY_SCHEMA
+from .planfile import (DRIFT_SCHEMA, PLAN_SCHEMAS, SESSION_GAP_MIN, SURVEY_SCHEMA,  # noqa: F401
+                       shown_span, survey_sessions)
 from .spectral import radio_velocity_kms
+from .windows import describe_window_texts
 
 
 # Charts in the order they appear; other keys follow alphabetically.
@@ -32,9 +34,6 @@ CHART_CAPTIONS = {
     "survey": "The schedule: which position the dish points at, when, and its elevation.",
     "sky": "The visiting order on the sky.",
 }
-
-# Blocks of a survey more than this far apart start a new session (a new night or school day).
-SESSION_GAP_MIN = 120.0
 
 SKIP_REASONS = {
     "sun": "too near the Sun",
@@ -195,23 +194,8 @@ def _parse_time(text) -> datetime | None:
         return None
 
 
-def _minute(moment: datetime, how: str) -> datetime:
-    """Round an instant to a whole minute: "floor", "ceil" or "nearest"."""
-    base = moment.replace(second=0, microsecond=0)
-    rest = moment - base
-    if how == "ceil" and rest > timedelta(0):
-        return base + timedelta(minutes=1)
-    if how == "nearest" and rest >= timedelta(seconds=30):
-        return base + timedelta(minutes=1)
-    return base
-
-
-def _clock(text, how: str, day: date | None = None) -> str:
-    """Local clock time HH:MM of an ISO string, marked when it falls on another date than ``day``."""
-    moment = _parse_time(text)
-    if moment is None:
-        return _text(text)
-    moment = _minute(moment, how)
+def _at(moment: datetime, day: date | None) -> str:
+    """HH:MM of a (rounded) local time, marked when it falls on another date than ``day``."""
     out = moment.strftime("%H:%M")
     if day is not None and moment.date() != day:
         delta = (moment.date() - day).days
@@ -219,10 +203,19 @@ def _clock(text, how: str, day: date | None = None) -> str:
     return out
 
 
-def _window(start, end, day: date | None, outward: bool) -> str:
-    """A local time window; outward rounding covers the interval, inward stays inside it."""
-    how_start, how_end = ("floor", "ceil") if outward else ("ceil", "floor")
-    return f"{_clock(start, how_start, day)}–{_clock(end, how_end, day)}"
+def _shown(start, end, outward: bool = True) -> tuple[datetime | None, datetime | None]:
+    """Local start and end of an interval rounded as every output rounds it (``shown_span``)."""
+    a, b = _parse_time(start), _parse_time(end)
+    if a is None or b is None:
+        return a, b
+    return shown_span(a, b, outward)
+
+
+def _window(start, end, day: date | None, outward: bool = True) -> str:
+    """A local time window (``shown_span``): outward covers the interval, inward stays inside."""
+    a, b = _shown(start, end, outward)
+    return (f"{_at(a, day) if a is not None else _text(start)}–"
+            f"{_at(b, day) if b is not None else _text(end)}")
 
 
 def _day(value) -> date | None:
@@ -372,7 +365,7 @@ def _drift_settings(doc: dict) -> Section:
     items = [
         ("Wanted longitudes:", f"{_want_text(settings.get('want'))}, in "
                                f"{_num(settings.get('bin_width_deg'), 'g')}° bins; target {depth}."),
-        ("Your hours:", "; ".join(_text(w) for w in windows) + "." if windows else "any time."),
+        ("Your hours:", "; ".join(describe_window_texts(windows)) + "." if windows else "any time."),
         ("Night only:", f"yes: record only with the Sun down ({_text(settings.get('night') or 'horizon')})."
          if settings.get("night_only") else "no: daytime recordings are fine at this frequency."),
         ("Moving the dish:", f"at most {_num(reparks, 'g')} time{'' if _float(reparks) == 1 else 's'} "
@@ -403,6 +396,15 @@ def _spike_kms(tuning: dict) -> tuple[float | None, float | None]:
     return v_topo_kms + c_lo, v_topo_kms + c_hi
 
 
+def _setting_changes(tunings: list[tuple[str, dict]], most: int = 12) -> list[tuple[str, float]]:
+    """(label, centre MHz) where a plan marks a retune (``tuning.retune``); empty when the plan
+    does not mark them, or when there are more than ``most`` (then the table says it all)."""
+    if not any(isinstance(t.get("retune"), bool) for _, t in tunings):
+        return []
+    out = [(label, _float(t.get("centre_mhz"))) for label, t in tunings if t.get("retune")]
+    return [(label, c) for label, c in out if c is not None] if len(out) <= most else []
+
+
 def _tuning_section(tunings: list[tuple[str, dict]], where: str) -> Section:
     """Receiver settings over all days (drift) or blocks (survey); ``where`` names the table."""
     if not tunings:
@@ -411,8 +413,13 @@ def _tuning_section(tunings: list[tuple[str, dict]], where: str) -> Section:
     first = tunings[0][1]
     centres = sorted({round(c, 6) for c in (_float(t.get("centre_mhz")) for _, t in tunings)
                       if c is not None})
+    changes = _setting_changes(tunings)
     if len(centres) == 1:
         centre_text = f"{centres[0]:.3f} MHz, the same for the whole plan."
+    elif changes:
+        centre_text = (f"{len(changes)} settings, each kept until the next: "
+                       + "; ".join(f"{c:.3f} MHz from {label}" for label, c in changes)
+                       + f". Retune on those days only (marked RETUNE in {where}).")
     elif centres:
         centre_text = (f"changes between {centres[0]:.3f} and {centres[-1]:.3f} MHz: set it as "
                        f"given in {where} before each recording.")
@@ -493,6 +500,8 @@ def _drift_day_row(day: dict, bin_width) -> Row:
     recordings = hazards + recordings
     tuning = day.get("tuning") or {}
     receiver = [f"{_num(tuning.get('centre_mhz'), '.3f')} MHz"] if tuning else ["—"]
+    if tuning.get("retune") is True:
+        receiver[0] = f"RETUNE to {receiver[0]}"
     if tuning and tuning.get("fits") is False:
         receiver.append("line does not fit")
     reasons = Counter(_text(s.get("reason")) for s in day.get("skipped") or ())
@@ -519,9 +528,11 @@ def _drift_day_section(doc: dict) -> Section:
     clock = _clock_note(doc)
     blocks = [
         Paragraph(f"{clock} Start each recording at or before its first time and stop at or after "
-                  "its second (the times are rounded outward to the minute). On a MOVE day, set the "
-                  "dish inside the given window; recordings marked \"before the move\" are made with "
-                  "the previous setting. Otherwise leave the dish where it is.", "note"),
+                  "its second (start times are rounded down and end times up to the minute, as in "
+                  "the calendar). On a MOVE day, set the dish inside the given window; recordings "
+                  "marked \"before the move\" are made with the previous setting. Otherwise leave "
+                  "the dish where it is. Set the receiver centre on RETUNE days, before the day's "
+                  "first recording, and leave it there until the next RETUNE.", "note"),
         table,
     ]
     reasons = Counter(_text(s.get("reason")) for day in days for s in day.get("skipped") or ())
@@ -546,7 +557,20 @@ def _drift_coverage(doc: dict) -> Section:
         ("After it, if the plan is followed:", f"{_num(summary.get('done_after'), 'g')} of "
                                                f"{_num(wanted, 'g')} at target depth."),
     ]
+    if summary.get("upper_bound") is not None:
+        items.append(("Best possible:", f"no plan under the same rules brings more than "
+                                        f"{_num(summary.get('upper_bound'), 'g')} to target depth "
+                                        "(a proven bound)."))
     blocks: list = [Bullets(tuple(items))]
+    trade = summary.get("tradeoff") or []
+    if trade:
+        blocks.append(Paragraph("How often to move the dish: bins at target depth if the dish is "
+                                "moved at most this many times (each with its own best plan)."))
+        blocks.append(Table(("Moves at most", "Bins at target", "Moves used", "Bound"), tuple(
+            Row((("any" if t.get("max_moves") is None else _num(t.get("max_moves"), "g"),),
+                 (_num(t.get("bins"), "g"),), (_num(t.get("moves"), "g"),),
+                 (_num(t.get("upper_bound"), "g"),))) for t in trade if isinstance(t, dict)),
+            "tradeoff-table"))
     gaps = summary.get("gaps") or []
     after = summary.get("depth_after_min") or {}
     if gaps:
@@ -600,33 +624,18 @@ def _drift_brief(doc: dict) -> Brief:
 
 # ------------------------------------------------------------------ survey plan
 
-def _session_end(block: dict):
-    """When a block's part in its session ends: a stow (the dish parked safe from the Sun,
-    perhaps for hours) ends the session when the dish arrives there."""
-    return block.get("start_utc" if block.get("kind") == "stow" else "end_utc")
-
-
 def _sessions(blocks: list[dict]) -> list[list[dict]]:
-    """Blocks grouped into observing sessions: a gap over SESSION_GAP_MIN starts a new one."""
-    sessions: list[list[dict]] = []
-    for block in blocks:
-        gap = (_minutes_between(_session_end(sessions[-1][-1]), block.get("start_utc"))
-               if sessions else None)
-        if not sessions or gap is None or gap > SESSION_GAP_MIN:
-            sessions.append([block])
-        else:
-            sessions[-1].append(block)
-    return sessions
+    """Blocks grouped into observing sessions (``planfile.survey_sessions``, a gap over
+    SESSION_GAP_MIN starts a new one), the same grouping the calendar's reminders use."""
+    return survey_sessions(blocks)
 
 
 def _survey_rows(session: list[dict], number: int) -> list[Row]:
-    first = _parse_time(session[0].get("start_local"))
     end_key = "start_local" if session[-1].get("kind") == "stow" else "end_local"
-    last = _parse_time(session[-1].get(end_key))
+    first, last = _shown(session[0].get("start_local"), session[-1].get(end_key))
     day = first.date() if first else None
     if first and last:
-        heading = (f"Session {number}: {_day_label(first.date())}, {_minute(first, 'nearest'):%H:%M} "
-                   f"to {_clock(session[-1].get(end_key), 'nearest', day)}")
+        heading = f"Session {number}: {_day_label(first.date())}, {first:%H:%M} to {_at(last, day)}"
     else:
         heading = f"Session {number}"
     slews = [b for b in session if b.get("kind") == "slew"]
@@ -646,14 +655,13 @@ def _survey_rows(session: list[dict], number: int) -> list[Row]:
         tuning = block.get("tuning") or {}
         target = (f"{_text(block.get('name'))}",
                   f"l {_deg(block.get('l_deg'))}, b {_sdeg(block.get('b_deg'))}")
-        azel = (f"az {_deg(block.get('az_start_deg'))}→{_deg(block.get('az_end_deg'))}",
-                f"el {_deg(block.get('alt_start_deg'))}→{_deg(block.get('alt_end_deg'))}")
+        azel = _azimuth_lines(block) + (
+            f"el {_deg(block.get('alt_start_deg'))}→{_deg(block.get('alt_end_deg'))}",)
         receiver = [f"{_num(tuning.get('centre_mhz'), '.3f')} MHz"] if tuning else ["—"]
         if tuning and tuning.get("fits") is False:
             receiver.append("line does not fit")
         rows.append(Row((
-            (f"{_clock(block.get('start_local'), 'nearest', day)}–"
-             f"{_clock(block.get('end_local'), 'nearest', day)}",),
+            (_window(block.get("start_local"), block.get("end_local"), day),),
             (_text(kind),),
             target,
             azel,
@@ -665,16 +673,33 @@ def _survey_rows(session: list[dict], number: int) -> list[Row]:
     return rows
 
 
+def _azimuth_lines(block: dict, track: bool = True) -> tuple[str, ...]:
+    """The drive azimuth to set (start→end of the block), with the sky azimuth beside it where
+    the cable wrap makes them differ; older plans without drive angles show the sky azimuth."""
+    keys = (("drive_az_start_deg", "drive_az_end_deg"), ("az_start_deg", "az_end_deg"))
+    (d0, d1), (s0, s1) = ((_float(block.get(a)), _float(block.get(b))) for a, b in keys)
+    if not track:
+        d1, s1 = d0, s0
+
+    def span(a, b) -> str:
+        return _deg(a) if b is None or abs(a - b) < 0.05 else f"{_deg(a)}→{_deg(b)}"
+
+    if d0 is None:
+        return (f"sky az {span(s0, s1)}",) if s0 is not None else ("az —",)
+    differs = s0 is not None and (abs(d0 - s0) >= 0.05 or (d1 is not None and s1 is not None
+                                                           and abs(d1 - s1) >= 0.05))
+    return (f"drive az {span(d0, d1)}" + (f" (sky {span(s0, s1)})" if differs else ""),)
+
+
 def _survey_stow_row(block: dict, minutes, day) -> Row:
     """A stow: the dish parked where the Sun cannot come near the feed, until the next slew."""
     what = (f"stow the dish (safe from the Sun) at elevation {_deg(block.get('alt_start_deg'))}, "
             f"drive azimuth {_deg(block.get('drive_az_start_deg'))}")
     return Row((
-        (f"{_clock(block.get('start_local'), 'nearest', day)}–"
-         f"{_clock(block.get('end_local'), 'nearest', day)}",),
+        (_window(block.get("start_local"), block.get("end_local"), day),),
         ("stow",),
         (what,),
-        (f"az {_deg(block.get('az_start_deg'))}", f"el {_deg(block.get('alt_start_deg'))}"),
+        _azimuth_lines(block, track=False) + (f"el {_deg(block.get('alt_start_deg'))}",),
         (_num(minutes, ".1f"),),
         (_deg(block.get("sun_sep_min_deg"), 0),),
         ("—",),
@@ -682,18 +707,39 @@ def _survey_stow_row(block: dict, minutes, day) -> Row:
     ), "move")
 
 
+def _cable_wrap_note(doc: dict) -> str:
+    """Once per brief: what the drive azimuth is and why it can differ from the sky azimuth."""
+    settings = doc.get("settings") or {}
+    lo, hi = _float(settings.get("azimuth_min_deg")), _float(settings.get("azimuth_max_deg"))
+    known = lo is not None and hi is not None
+    if known and hi - lo <= 360.0:
+        wrap = f"This mount's azimuth drive runs from {_deg(lo, 0)} to {_deg(hi, 0)}."
+    else:
+        where = f"from {_deg(lo, 0)} to {_deg(hi, 0)}, more than one turn" if known else \
+            "past 0° or 360°"
+        wrap = (f"This mount's azimuth drive runs {where} (the cable wrap), so one direction on "
+                "the sky can have two drive angles: the plan picks the one that keeps the cables "
+                "inside their range along the whole schedule, and gives the sky azimuth in "
+                "brackets where the two differ. Set the drive angle, not the sky azimuth: turning "
+                "the other way round can wind the cables up.")
+    return ("Drive azimuth: the angle to set on the mount's azimuth drive (what its encoder "
+            f"reads), from north through east. {wrap}")
+
+
 def _survey_block_section(doc: dict) -> Section:
     blocks = doc.get("blocks") or []
-    header = ("Time (local)", "Kind", "Target", "Az / El", "Minutes", "Sun distance",
+    header = ("Time (local)", "Kind", "Target", "Drive az / El", "Minutes", "Sun distance",
               "Receiver centre", "Done")
     rows: list[Row] = []
     for n, session in enumerate(_sessions(blocks), start=1):
         rows.extend(_survey_rows(session, n))
     clock = _clock_note(doc)
-    parts = [Paragraph(f"{clock} Rounded to the nearest minute. The mount moves between blocks "
-                       "(slews); these are counted in each session's heading. Where the Sun would "
-                       "come near the resting dish, the plan stows it first (safe from the Sun) "
-                       "and it stays there until the next slew.", "note")]
+    parts = [Paragraph(f"{clock} Start times are rounded down and end times up to the minute "
+                       "(as in the calendar), so each block is covered whole. The mount moves "
+                       "between blocks (slews); these are counted in each session's heading. Where "
+                       "the Sun would come near the resting dish, the plan stows it first (safe from "
+                       "the Sun) and it stays there until the next slew.", "note"),
+             Paragraph(_cable_wrap_note(doc), "note")]
     parts.append(Table(header, tuple(rows), "day-table", ("when", "", "nb", "nb", "", "", "nb", "done"))
                  if blocks
                  else Paragraph("No blocks are scheduled in this period."))
@@ -726,7 +772,7 @@ def _survey_settings(doc: dict) -> Section:
     settings = doc.get("settings") or {}
     windows = settings.get("windows") or []
     items = [
-        ("Your hours:", "; ".join(_text(w) for w in windows) + "." if windows else "any time."),
+        ("Your hours:", "; ".join(describe_window_texts(windows)) + "." if windows else "any time."),
         ("Night only:", (f"yes ({_text(settings.get('night') or 'horizon')})."
                          if settings.get("night_only") else "no.")),
         ("Moon rule:", f"at least {_deg(settings.get('moon_min_sep_deg'), 0)} from the Moon."),
@@ -746,7 +792,8 @@ def _survey_brief(doc: dict) -> Brief:
     if kinds.get("stow"):
         summary += (f" The dish is stowed safe from the Sun {kinds['stow']} "
                     f"time{'s' if kinds['stow'] != 1 else ''}.")
-    tunings = [(f"{_text(b.get('name'))} at {_clock(b.get('start_local'), 'nearest')}", b["tuning"])
+    tunings = [(f"{_text(b.get('name'))} at {_window(b.get('start_local'), b.get('end_local'), None)}",
+                b["tuning"])
                for b in blocks if isinstance(b.get("tuning"), dict)]
     sections = (
         _safety_section(),

@@ -32,6 +32,7 @@ import numpy as np
 
 from .avoidance import separation_deg
 from .doppler import velocity_corrections
+from .errors import UserError
 from .earth import earth_nodes, earth_state
 from .galactic import ICRS_TO_GALACTIC
 from .pointing import Pointing
@@ -41,6 +42,17 @@ from .timebase import SECONDS_PER_DAY, dut1_s
 from .windows import inside
 
 SIDEREAL_DAY_UT1_DAYS = 1.0 / 1.00273781191135448
+# Work limits (memory grows with these products; beyond them the sweep is refused with
+# a one-line error before anything is allocated). About 200 bytes per template sample
+# (times, interpolated Earth state, vectors) and 120 bytes per passage occurrence
+# (its figures), 8 bytes per (occurrence, bin) for per-occurrence plans: each limit
+# keeps its part under about 1 GB. The defaults (half-beam steps, a year) use < 2 %.
+MAX_TEMPLATE_SAMPLES = 5_000_000  # declinations x template samples per epoch
+MAX_OCCURRENCES = 8_000_000  # declinations x passages in the period
+MAX_OCCURRENCE_BINS = 100_000_000  # passages x longitude bins, per-occurrence sweeps
+# A declination circle crosses the |b| strip at most twice a sidereal day (a great
+# circle meets the plane twice); grazes split a passage at most into two more.
+_PASSAGES_PER_DAY_BOUND = 4
 EPOCH_SPACING_DAYS = 61.0
 _TEMPLATE_SPAN_DAYS = 1.5  # one sidereal day plus room for the longest grazing passage
 
@@ -222,6 +234,7 @@ def sweep(site: Site, pointings: list[Pointing], start_mjd: float, end_mjd: floa
     bw = site.rules.bin_width_deg
     n_bins = int(round(360.0 / bw))
     n_rows = len(pointings)
+    check_work(n_rows, end_mjd - start_mjd, n_bins, step_s, per_occurrence)
     beam = FixedBeams(site, pointings, earth_nodes(start_mjd - 1.5, end_mjd + 1.5))
 
     n_seg = max(1, int(np.ceil((end_mjd - start_mjd) / EPOCH_SPACING_DAYS)))
@@ -249,6 +262,21 @@ def sweep(site: Site, pointings: list[Pointing], start_mjd: float, end_mjd: floa
     result = _assemble(site, pointings, parts, total, usable_s, in_band_s, in_window_s,
                        start_mjd, end_mjd, b_max, bw, night_only, window_intervals is not None)
     return replace(result, night_sun_alt_deg=float(night_sun_alt_deg))
+
+
+def check_work(n_rows: int, days: float, n_bins: int, step_s: float = 120.0,
+               per_occurrence: bool = False) -> None:
+    """Refuse (UserError) a sweep whose estimated work exceeds the documented limits."""
+    template = n_rows * (int(np.ceil(_TEMPLATE_SPAN_DAYS * SECONDS_PER_DAY / step_s)) + 1)
+    occurrences = n_rows * _PASSAGES_PER_DAY_BOUND * (days + 1.0)
+    cells = occurrences * n_bins if per_occurrence else 0
+    for amount, limit, what in ((template, MAX_TEMPLATE_SAMPLES, "track samples"),
+                                (occurrences, MAX_OCCURRENCES, "passages"),
+                                (cells, MAX_OCCURRENCE_BINS, "passage-bins")):
+        if amount > limit:
+            raise UserError(f"--step/--days: {n_rows} declinations over {days:g} days means about "
+                            f"{amount:,.0f} {what}, more than the {limit:,} hiplan allows; use a "
+                            "coarser --step (the default is half the beamwidth) or fewer days")
 
 
 def _judge(site: Site, beam: FixedBeams, tpl: _Templates, which: np.ndarray, start: np.ndarray,

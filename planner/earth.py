@@ -15,17 +15,22 @@ Conventions: vectors are Cartesian float arrays with the axis last (N, 3).
 """
 from __future__ import annotations
 
+import warnings
 from dataclasses import dataclass
 
 import erfa
 import numpy as np
 
-from .timebase import MJD_ZERO_JD, SECONDS_PER_DAY, dut1_s, tt_minus_utc_s
+from .timebase import END_MJD, FIRST_MJD, MJD_ZERO_JD, SECONDS_PER_DAY, dut1_s, tt_minus_utc_s
 
 AU_KM = 149597870.7  # IAU 2012 Resolution B2
 # Earth's sidereal angular velocity in rad/s (IERS Conventions 2010, ERA rate).
 EARTH_OMEGA_RAD_S = 2.0 * np.pi * 1.00273781191135448 / SECONDS_PER_DAY
 NODE_SPACING_DAYS = 0.5
+# eraEpv00 is stated for 1900-2100 AD and warns outside it; its accuracy falls off
+# gradually. hiplan's dates end a day inside that range (timebase.FIRST_DAY, LAST_DAY),
+# so nodes a few days past them (interpolation margins, far-west zones) need no warning.
+_EPV00_QUIET_MJD = (FIRST_MJD - 4.0, END_MJD + 4.0)
 
 
 @dataclass(frozen=True)
@@ -57,7 +62,10 @@ def earth_nodes(mjd_lo: float, mjd_hi: float,
     nodes_tt = nodes + tt_minus_utc_s(nodes) / SECONDS_PER_DAY
     c2i = erfa.c2i06a(MJD_ZERO_JD, nodes_tt)
     # epv00 wants TDB; TT differs by < 2 ms, i.e. < 1e-6 km/s here.
-    pvh, pvb = erfa.epv00(MJD_ZERO_JD, nodes_tt)
+    with warnings.catch_warnings():
+        if _EPV00_QUIET_MJD[0] <= nodes.min() and nodes.max() <= _EPV00_QUIET_MJD[1]:
+            warnings.simplefilter("ignore", erfa.ErfaWarning)
+        pvh, pvb = erfa.epv00(MJD_ZERO_JD, nodes_tt)
     return EarthNodes(mjd_utc=nodes, c2i=c2i,
                       earth_vel_kms=pvb["v"] * (AU_KM / SECONDS_PER_DAY),
                       sun_from_earth_au=-pvh["p"])

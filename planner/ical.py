@@ -40,7 +40,9 @@ from zoneinfo import ZoneInfo, ZoneInfoNotFoundError
 import icalendar
 
 from .errors import UserError
-from .planfile import PLAN_SCHEMAS, SURVEY_BLOCK_KINDS
+from .inputs import check_plain
+from .planfile import PLAN_SCHEMAS, SURVEY_BLOCK_KINDS, shown_span, survey_sessions
+from .timebase import LeapSecondError, check_supported, leap_instant_mjd, parse_iso
 
 _KIND_OF_SCHEMA = {"hiplan.plan/1": "drift", "hiplan.survey/1": "survey"}
 
@@ -61,6 +63,15 @@ SAFETY_TEXT = (
     "band); never transmit. Follow local building and electrical codes."
 )
 
+# What a drive azimuth is: told once a day in a survey calendar and in its description.
+DRIVE_AZIMUTH_TEXT = (
+    "Drive azimuth: the angle to set on the mount's azimuth drive (what its encoder reads), "
+    "from north through east. A drive whose range spans more than one turn (a cable wrap) can "
+    "reach one sky direction at two drive angles; the plan picks the one that keeps the cables "
+    "inside their range and gives the sky azimuth in brackets where the two differ. Set the "
+    "drive angle: turning the other way round can wind the cables up."
+)
+
 EVENT_KINDS = ("sun-hazard", "recording", "repark", "target", "reference")
 _CATEGORY = {"recording": "HI recording", "repark": "dish re-park", "target": "HI survey",
              "reference": "HI survey", "sun-hazard": "SUN HAZARD"}
@@ -71,7 +82,7 @@ HAZARD_ALARM_MINUTES = 60
 
 @dataclass(frozen=True)
 class PlanEvent:
-    """One calendar task: times are aware UTC datetimes, whole seconds."""
+    """One calendar task: times are aware UTC datetimes, whole minutes (``planfile.shown_span``)."""
 
     kind: str  # one of EVENT_KINDS
     start_utc: datetime
@@ -79,6 +90,7 @@ class PlanEvent:
     summary: str
     description: str
     identity: str  # what makes the task the same task in an updated plan
+    alarm: bool = True  # survey blocks: only the first of an observing session reminds
 
 
 # ------------------------------------------------------------------- checking
@@ -91,6 +103,7 @@ def check_plan(doc: dict, source: str) -> None:
     """
     plan_events(doc, source)
     _alarm_lead(doc, None, source)
+    _warnings(doc, source)
 
 
 def read_plan(path) -> dict:
@@ -162,29 +175,50 @@ def _text(obj: dict, key: str, where: str, source: str, required=True) -> str | 
     if not isinstance(value, str) or not value.strip():
         found = "missing" if value is None else f"{value!r}, not a text"
         raise UserError(f"{source}: {_join(where, key)} is {found}")
+    # Checked here, not left to icalendar: a CR or LF would end a calendar line and start a
+    # forged one, and icalendar's own check is an assert, which python -O removes.
+    check_plain(value, source, _join(where, key))
     return value.strip()
+
+
+def _warnings(doc: dict, source: str) -> list[str]:
+    """The plan's warning texts (they head the calendar's description), checked like ``_text``."""
+    texts = [w for w in doc.get("warnings") or [] if isinstance(w, str)]
+    for i, text in enumerate(texts):
+        check_plain(text, source, f"warnings[{i}]")
+    return texts
 
 
 def _instant(obj: dict, key: str, where: str, source: str) -> datetime:
     """Aware UTC datetime, rounded to the second, from an ISO 8601 text with Z or offset."""
     text = _text(obj, key, where, source)
     try:
-        moment = datetime.fromisoformat(text)
+        moment, leap = parse_iso(text)  # second 60 reads as 59: a datetime has no leap second
     except ValueError:
         raise UserError(f"{source}: {_join(where, key)}: '{text}' is not an ISO 8601 time "
                         "(e.g. 2027-03-01T21:30:00Z)") from None
     if moment.tzinfo is None:
         raise UserError(f"{source}: {_join(where, key)}: '{text}' has no Z or UTC offset")
-    moment = moment.astimezone(timezone.utc)
+    try:
+        if leap:
+            leap_instant_mjd(moment, text)
+        moment = moment.astimezone(timezone.utc)
+        check_supported(moment.date(), f"{source}: {_join(where, key)}")
+    except (LeapSecondError, OverflowError) as exc:
+        why = str(exc) if isinstance(exc, LeapSecondError) else "outside the dates hiplan supports"
+        raise UserError(f"{source}: {_join(where, key)}: {why}") from None
     return (moment + timedelta(microseconds=500_000)).replace(microsecond=0)
 
 
-def _span(obj: dict, start_key: str, end_key: str, where: str, source: str):
+def _span(obj: dict, start_key: str, end_key: str, where: str, source: str, outward: bool = True):
+    """Start and end as shown to people: whole minutes by the one rule of every output
+    (``planfile.shown_span``: outward for what is recorded, inward for a window to act in)."""
     start = _instant(obj, start_key, where, source)
     end = _instant(obj, end_key, where, source)
     if end <= start:  # RFC 5545 section 3.8.2.2: DTEND later than DTSTART
         raise UserError(f"{source}: {_join(where, end_key)} is not after {start_key}")
-    return start, end
+    shown = shown_span(start, end, outward)
+    return shown if shown[1] > shown[0] else (start, end)  # a window shorter than a minute
 
 
 def _join(where: str, key: str) -> str:
@@ -259,6 +293,7 @@ def _drift_events(doc, site, settings, tz, source) -> list[PlanEvent]:
             windows.append(_recording(rec, rec_where, rec_park, tuning, centre_mhz, bin_width_deg,
                                       site, tz, source))
         if park is not None and park["move"]:
+            park["retune"] = (tuning or {}).get("retune") is not False
             events.append(_repark(park, windows, centre_mhz, site, tz))
         events.extend(event for event, _ in windows)
         hazards = _member(day, "sun_hazards", where, source, kind=list, required=False) or []
@@ -300,7 +335,8 @@ def _park(park: dict, where: str, source: str) -> dict:
         "move": move,
     }
     if move:
-        out["start"], out["end"] = _span(park, "move_start_utc", "move_end_utc", where, source)
+        out["start"], out["end"] = _span(park, "move_start_utc", "move_end_utc", where, source,
+                                         outward=False)
     return out
 
 
@@ -357,7 +393,8 @@ def _repark(park, windows, centre_mhz, site, tz) -> PlanEvent:
     ]
     if centre_mhz is not None:
         lines.append(f"Receiver: set the centre frequency to {centre_mhz:.3f} MHz for today's "
-                     "recordings.")
+                     "recordings." if park.get("retune", True) else
+                     f"Receiver: leave the centre frequency at {centre_mhz:.3f} MHz.")
     if windows:
         lines.append("Today's recordings from this pointing: "
                      + "; ".join(f"{_clock_span(w.start_utc, w.end_utc, tz)} (l {l_text})"
@@ -368,10 +405,16 @@ def _repark(park, windows, centre_mhz, site, tz) -> PlanEvent:
 
 
 def _survey_events(doc, site, tz, source) -> list[PlanEvent]:
+    """One event per target or reference block. Only the first event of an observing session
+    (``planfile.survey_sessions``) has a reminder and a line about the session; the safety text
+    and the drive-azimuth note come with the first event of each session and of each local day
+    (a session running past midnight tells them again after it)."""
+    blocks = _member(doc, "blocks", "", source, kind=list)
     events = []
     slews: list[tuple[datetime, datetime]] = []
     stowed: str | None = None  # the stow the dish comes from, for the next block's description
-    for i, block in enumerate(_member(doc, "blocks", "", source, kind=list)):
+    session_of: dict[int, int] = {}  # id(block) -> session number
+    for i, block in enumerate(blocks):
         where = f"blocks[{i}]"
         if not isinstance(block, dict):
             raise UserError(f"{source}: {where} must be an object, found {_json_type(block)}")
@@ -383,8 +426,7 @@ def _survey_events(doc, site, tz, source) -> list[PlanEvent]:
             stowed = _stow_text(block, slews, tz, where, source)
             if events:  # told after the block before it; no task: the mount does it
                 last = events[-1]
-                events[-1] = replace(last, description=last.description.replace(
-                    "\n\n" + SAFETY_TEXT, f"\nAfterwards: {stowed}\n\n{SAFETY_TEXT}"))
+                events[-1] = replace(last, description=f"{last.description}\nAfterwards: {stowed}")
             slews = []
             continue
         start, end = _span(block, "start_utc", "end_utc", where, source)
@@ -392,8 +434,26 @@ def _survey_events(doc, site, tz, source) -> list[PlanEvent]:
             slews.append((start, end))
             continue
         events.append(_block(block, kind, start, end, slews, site, tz, where, source, stowed))
+        session_of[len(events) - 1] = id(block)
         slews, stowed = [], None
-    return events
+    number = {id(b): n for n, session in enumerate(survey_sessions(blocks)) for b in session}
+    out, seen_sessions, seen_days = [], set(), set()
+    for k, event in enumerate(events):
+        session = number[session_of[k]]
+        first_of_session = session not in seen_sessions
+        seen_sessions.add(session)
+        day = event.start_utc.astimezone(tz).date()
+        lines = [event.description]
+        if first_of_session:
+            mine = [e for j, e in enumerate(events) if number[session_of[j]] == session]
+            lines.insert(0, f"Session start: {len(mine)} block{'s' if len(mine) != 1 else ''}, "
+                            f"{_clock_span(mine[0].start_utc, mine[-1].end_utc, tz)} "
+                            f"({tz.key} time). This is the session's only reminder.")
+        if first_of_session or day not in seen_days:
+            seen_days.add(day)
+            lines += ["", DRIVE_AZIMUTH_TEXT, "", SAFETY_TEXT]
+        out.append(replace(event, description="\n".join(lines), alarm=first_of_session))
+    return out
 
 
 def _stow_text(block, slews, tz, where, source) -> str:
@@ -402,6 +462,7 @@ def _stow_text(block, slews, tz, where, source) -> str:
     end = _instant(block, "end_utc", where, source)
     if end < start:
         raise UserError(f"{source}: {_join(where, 'end_utc')} is before start_utc")
+    start, end = shown_span(start, end)
     alt = _number(block, "alt_start_deg", where, source, -90, 90)
     drive = _number(block, "drive_az_start_deg", where, source, -720, 720)
     moved = f" (moving {_clock_span(slews[0][0], start, tz)})" if slews else ""
@@ -417,8 +478,11 @@ def _block(block, kind, start, end, slews, site, tz, where, source,
     az0 = _number(block, "az_start_deg", where, source, -360, 720) % 360
     alt1 = _number(block, "alt_end_deg", where, source, -90, 90, required=False)
     az1 = _number(block, "az_end_deg", where, source, -360, 720, required=False)
+    drive0 = _number(block, "drive_az_start_deg", where, source, -720, 720, required=False)
+    drive1 = _number(block, "drive_az_end_deg", where, source, -720, 720, required=False)
     what = "" if kind == "target" else "reference "
-    summary = f"Point dish at {what}{name} (az {az0:.0f}°, el {alt0:.0f}°)"
+    summary = (f"Point dish at {what}{name} (az {az0:.0f}°, el {alt0:.0f}°)" if drive0 is None
+               else f"Point dish at {what}{name} (drive az {drive0:.0f}°, el {alt0:.0f}°)")
     role = "target" if kind == "target" else "reference position"
     lines = [f"Observe {name} ({role}), {_clock_span(start, end, tz)} "
              f"({_minutes(start, end)} min, {tz.key} time)."]
@@ -427,11 +491,19 @@ def _block(block, kind, start, end, slews, site, tz, where, source,
     for s0, s1 in slews:
         lines.append(f"First the dish slews into position, {_clock_span(s0, s1, tz)} "
                      f"({_minutes(s0, s1)} min).")
-    point = f"Point the dish at azimuth {az0:.1f}°, elevation {alt0:.1f}°"
-    if alt1 is not None and az1 is not None:
-        point += (f"; the mount tracks to azimuth {az1 % 360:.1f}°, elevation {alt1:.1f}° "
-                  "by the end")
-    lines.append(point + " (azimuth from north through east).")
+    if drive0 is None:  # a plan without drive angles: sky azimuths only
+        point = f"Point the dish at azimuth {az0:.1f}°, elevation {alt0:.1f}°"
+        if alt1 is not None and az1 is not None:
+            point += (f"; the mount tracks to azimuth {az1 % 360:.1f}°, elevation {alt1:.1f}° "
+                      "by the end")
+        lines.append(point + " (azimuth from north through east).")
+    else:
+        point = f"Set the drive to azimuth {_drive_text(drive0, az0)}, elevation {alt0:.1f}°"
+        if alt1 is not None and drive1 is not None:
+            end_sky = az1 % 360 if az1 is not None else drive1 % 360
+            point += (f"; the mount tracks to drive azimuth {_drive_text(drive1, end_sky)}, "
+                      f"elevation {alt1:.1f}° by the end")
+        lines.append(point + ".")
     l_deg = _number(block, "l_deg", where, source, -360, 360, required=False)
     b_deg = _number(block, "b_deg", where, source, -90, 90, required=False)
     ra_deg = _number(block, "ra_deg", where, source, -360, 360, required=False)
@@ -449,9 +521,15 @@ def _block(block, kind, start, end, slews, site, tz, where, source,
     lines += _receiver_lines(tuning, centre_mhz)
     lines += _lsr_lines(block, where, source)
     lines += _sun_moon_lines(block, where, source)
-    lines += ["", SAFETY_TEXT]
     return PlanEvent(kind, start, end, summary, "\n".join(lines),
                      _identity(site, kind, start, name))
+
+
+def _drive_text(drive_deg: float, sky_deg: float) -> str:
+    """'-10.0° (sky 350.0°)': the drive (cable-wrap) azimuth, with the sky azimuth where they differ."""
+    if abs(drive_deg - sky_deg % 360) < 0.05:
+        return f"{drive_deg:.1f}°"
+    return f"{drive_deg:.1f}° (sky {sky_deg % 360:.1f}°)"
 
 
 def _identity(site: dict, kind: str, start_utc: datetime, extra: str) -> str:
@@ -493,7 +571,9 @@ def _pointing_text(park: dict) -> str:
 def _receiver_lines(tuning: dict | None, centre_mhz: float | None) -> list[str]:
     if centre_mhz is None:
         return []
-    line = f"Receiver: centre frequency {centre_mhz:.3f} MHz"
+    line = (f"Receiver: RETUNE today to centre frequency {centre_mhz:.3f} MHz (kept until the "
+            f"next retune)" if (tuning or {}).get("retune") is True
+            else f"Receiver: centre frequency {centre_mhz:.3f} MHz")
     low, high = (tuning or {}).get("line_low_mhz"), (tuning or {}).get("line_high_mhz")
     if _is_number(low) and _is_number(high):
         line += f"; the HI line is expected between {low:.3f} and {high:.3f} MHz"
@@ -572,12 +652,21 @@ def plan_calendar(doc: dict, alarm_minutes: int | None = None,
     cal.add("prodid", PRODID)
     cal.add("version", "2.0")
     cal.add("calscale", "GREGORIAN")
-    cal.add("x-wr-calname", f"HI plan - {name}")
-    cal.add("name", f"HI plan - {name}")  # RFC 7986 section 5.1
-    warnings = [w for w in doc.get("warnings") or [] if isinstance(w, str)]
-    cal.add("description", " ".join(warnings + [
-        f"hiplan {doc.get('kind', '')} plan for {name}; times in {tz.key}. A task keeps its UID "
-        "when the plan is exported again."]))
+    # TEXT values (RFC 5545 section 3.3.11: commas and semicolons escaped). icalendar
+    # escapes SUMMARY, DESCRIPTION and LOCATION itself but writes NAME and X-WR-CALNAME,
+    # which it does not know, as given: vText makes it escape them too.
+    cal.add("x-wr-calname", icalendar.vText(f"HI plan - {name}"))
+    cal.add("name", icalendar.vText(f"HI plan - {name}"))  # RFC 7986 section 5.1
+    warnings = _warnings(doc, "plan")
+    notes = [f"hiplan {doc.get('kind', '')} plan for {name}; times in {tz.key}, starts rounded "
+             "down and ends up to the minute. A task keeps its UID when the plan is exported again."]
+    if doc.get("kind") == "survey":
+        settings = doc.get("settings") if isinstance(doc.get("settings"), dict) else {}
+        lo, hi = settings.get("azimuth_min_deg"), settings.get("azimuth_max_deg")
+        if _is_number(lo) and _is_number(hi):
+            notes.append(f"This mount's azimuth drive runs from {lo:g}° to {hi:g}°.")
+        notes += [DRIVE_AZIMUTH_TEXT, "One reminder per observing session, before its first block."]
+    cal.add("description", " ".join(warnings + notes))
     first, last = _coverage(doc, events)
     cal.add_component(vtimezone(tz, first, last))
     for ev in events:
@@ -619,6 +708,8 @@ def _vevent(ev: PlanEvent, site: dict, tz: ZoneInfo, stamp: datetime, lead_min: 
     vevent.add("geo", (round(float(site["latitude_deg"]), 6),
                        round(float(site["longitude_deg"]), 6)))
     vevent.add("categories", ["hiplan", _CATEGORY[ev.kind]])
+    if not ev.alarm:
+        return vevent
     if ev.kind == "sun-hazard":
         lead_min = max(lead_min, HAZARD_ALARM_MINUTES)
     alarm = icalendar.Alarm()

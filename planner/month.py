@@ -25,7 +25,7 @@ The per-passage coverage comes from ``coverage.sweep`` (sidereal templates);
 a passage counts for a parking interval only if it lies wholly inside it,
 after the time the move takes (``repark_minutes``).
 
-Feed safety (``SunGuard``) is a hard constraint, above every rule of the
+Feed safety (``monthsafety.SunGuard``) is a hard constraint, above every rule of the
 goal: a setting may be held through a move-slot interval only if the Sun
 stays more than ``sun_hazard_deg`` from its beam while it is up
 (``sunsafety.sun_approaches``), and a move is allowed only if the path the dish
@@ -37,7 +37,6 @@ move the dish before the time given.
 """
 from __future__ import annotations
 
-from collections.abc import Callable
 from dataclasses import dataclass, field
 from datetime import datetime, timedelta
 
@@ -46,8 +45,7 @@ import numpy as np
 from .coverage import Sweep
 from .errors import UserError
 from .site import Site
-from .avoidance import SUNSET_ALTITUDE_DEG
-from .sunsafety import SunApproaches, move_sun_sep_deg, sun_approaches
+from .monthsafety import HazardTask, SunGuard
 from .timebase import datetime_to_mjd_utc, mjd_to_datetime_utc
 
 # Without windows the dish is moved at 10:00 local, not at noon: at noon the Sun sits on
@@ -88,34 +86,6 @@ class Parking:
     start_mjd: float  # recordings count from here
     end_mjd: float
     occurrences: np.ndarray = field(default_factory=lambda: np.zeros(0, int))
-
-
-@dataclass(frozen=True)
-class SunGuard:
-    """Feed-safety inputs: the Sun's approaches to every sweep row, and the move check.
-
-    ``move_sep_deg(from_row, t0, t1)`` gives, for every row, the Sun's least distance
-    (deg) from the path of a move from ``from_row`` to that row during [t0, t1], and the
-    Sun's highest altitude then. ``enforce`` false: plan without the constraint (the
-    user insists) and report every hazard as a task.
-    """
-
-    approaches: SunApproaches
-    move_sep_deg: Callable[[int, float, float], tuple[np.ndarray, float]]
-    limit_deg: float
-    enforce: bool = True
-
-
-@dataclass(frozen=True)
-class HazardTask:
-    """A time the Sun comes within the feed-safety limit of the dish as planned."""
-
-    row: int  # sweep row the dish is at (or moving to)
-    kind: str  # "parked" | "move"
-    closest_mjd: float
-    sep_deg: float
-    enter_mjd: float  # Sun closer than the limit from here ...
-    exit_mjd: float  # ... to here
 
 
 @dataclass(frozen=True)
@@ -184,52 +154,16 @@ def _slot_gains(tables, slots: list[MoveSlot], end_mjd: float, repark_days: floa
     return stay, moved
 
 
-def _unsafe_slots(guard: SunGuard | None, n_rows: int, edges: np.ndarray) -> np.ndarray:
-    """(R, K) True where the Sun endangers the feed of row r during slot interval k."""
-    unsafe = np.zeros((n_rows, edges.size - 1), dtype=bool)
-    if guard is None or not guard.enforce:
-        return unsafe
-    ap = guard.approaches
-    inside = ap.hazard & (ap.exit_mjd > edges[0]) & (ap.enter_mjd < edges[-1])
-    for i in np.flatnonzero(inside):  # a few per unsafe row and day
-        k_lo = np.searchsorted(edges, ap.enter_mjd[i], side="right") - 1
-        k_hi = np.searchsorted(edges, ap.exit_mjd[i], side="left") - 1
-        unsafe[ap.row[i], max(k_lo, 0):max(k_hi, 0) + 1] = True
-    return unsafe
-
-
-def sun_guard(sweep: Sweep, enforce: bool = True) -> SunGuard:
-    """The feed-safety constraints for planning over ``sweep`` (its rows and period)."""
-    site = sweep.site
-    pointings = [r.pointing for r in sweep.rows]
-    approaches = sun_approaches(site, pointings, sweep.start_mjd, sweep.end_mjd)
-
-    def move_sep(from_row: int, t0: float, t1: float):
-        return move_sun_sep_deg(site, pointings[from_row], pointings, t0, t1)
-
-    return SunGuard(approaches, move_sep, site.rules.sun_hazard_deg, enforce)
-
-
-def _moves_ok(guard: SunGuard | None, current: int | None, n_rows: int, t0: float,
-              t1: float) -> np.ndarray:
-    """(R,) True where moving from ``current`` to that row during [t0, t1] keeps the Sun clear."""
-    ok = np.ones(n_rows, dtype=bool)
-    if guard is None or not guard.enforce or current is None:
-        return ok
-    sep, sun_alt_max = guard.move_sep_deg(current, t0, t1)
-    if sun_alt_max > SUNSET_ALTITUDE_DEG:
-        ok = sep >= guard.limit_deg
-    ok[current] = True
-    return ok
-
-
 def plan_month(sweep: Sweep, goal: Goal, slots: list[MoveSlot], start_row: int | None,
                repark_minutes: float = 15.0, min_days_between_moves: int = 1,
-               guard: SunGuard | None = None) -> MonthPlan:
+               guard: SunGuard | None = None, max_moves: int | None = None) -> MonthPlan:
     """Choose a parking per move slot by completion rate (see module docstring).
 
     ``start_row``: the sweep row the dish is parked at when the period starts, or None
-    (then the first slot must move it). ``guard``: feed-safety constraints (None: none).
+    (then the first slot must move it, and that counts as a move). ``guard``:
+    feed-safety constraints (None: none). ``min_days_between_moves``: local days from
+    one move to the next at least. ``max_moves``: moves at most (None: no limit); a
+    move the Sun makes necessary is taken even past it (``monthopt`` then repairs).
     """
     tables = _usable_sorted(sweep)
     n_rows = len(sweep.rows)
@@ -247,7 +181,14 @@ def plan_month(sweep: Sweep, goal: Goal, slots: list[MoveSlot], start_row: int |
         return _finish(sweep, goal, parkings, depth_before, tables, guard, repark)
     stay, moved = _slot_gains(tables, slots, sweep.end_mjd, repark)
     edges = np.array([s.mjd for s in slots] + [sweep.end_mjd])
-    unsafe = _unsafe_slots(guard, n_rows, edges)
+    unsafe = (np.zeros((n_rows, len(slots)), bool) if guard is None
+              else guard.unsafe_slots(edges))
+    # Slots a parking starting at slot k must last to keep the next move far enough
+    # away in local days (not in slots: days without a window have none).
+    days = np.array([s.day for s in slots])
+    spacing = np.maximum(np.searchsorted(days, days + min_days_between_moves, side="left")
+                         - np.arange(len(slots)), 1)
+    moves = 0
     k = 0
     while k < len(slots):  # one decision per commitment, at most one per slot
         n_left = len(slots) - k
@@ -259,15 +200,19 @@ def plan_month(sweep: Sweep, goal: Goal, slots: list[MoveSlot], start_row: int |
             [np.zeros((n_rows, 1, first.shape[1])), np.cumsum(stay[:, k + 1:], axis=1)], axis=1)
         # Feasible (row, length): safe for every slot of the stay, and a safe move there.
         safe_run = np.cumprod(~unsafe[:, k:], axis=1).sum(axis=1)
-        reachable = _moves_ok(guard, current, n_rows, edges[k], edges[k] + repark)
+        reachable = (np.ones(n_rows, bool) if guard is None or current is None
+                     else guard.moves_safe(edges[k], edges[k] + repark)[current])
         lengths = np.arange(1, n_left + 1)
         feasible = (lengths[None, :] <= safe_run[:, None]) & reachable[:, None]
+        if max_moves is not None and moves >= max_moves and current is not None \
+                and feasible[current].any():
+            feasible[np.arange(n_rows) != current] = False  # no moves left: stay
         if not feasible.any():
             when = mjd_to_datetime_utc(edges[k]).astimezone(sweep.site.tz).strftime("%Y-%m-%d")
             raise UserError(f"no reachable setting is safe from the Sun on {when}: it passes within "
                             f"{guard.limit_deg:g}° of every one (cover the feed or stow the dish; "
                             "--allow-sun-hazard plans anyway, with a warning for every such day)")
-        min_j = 1 if current is None else min_days_between_moves
+        min_j = 1 if current is None else int(spacing[k])
         # A new parking must last at least the move spacing, unless the Sun cuts it short.
         min_len = np.minimum(min_j, np.maximum(safe_run, 1))
         feasible &= lengths[None, :] >= min_len[:, None]
@@ -297,6 +242,7 @@ def plan_month(sweep: Sweep, goal: Goal, slots: list[MoveSlot], start_row: int |
                 parkings[-1].end_mjd = edges[k]
             parkings.append(Parking(row, edges[k], edges[k] + repark, edges[k + j]))
             current = row
+            moves += 1
         else:
             parkings[-1].end_mjd = edges[k + j]
         depth = depth + cum[row, j - 1]
@@ -304,26 +250,11 @@ def plan_month(sweep: Sweep, goal: Goal, slots: list[MoveSlot], start_row: int |
     return _finish(sweep, goal, parkings, depth_before, tables, guard, repark)
 
 
-def _hazard_tasks(guard: SunGuard | None, parkings: list[Parking], repark: float,
-                  start_mjd: float) -> tuple[HazardTask, ...]:
-    """Every time the Sun endangers the feed as planned (unavoidable, or insisted on)."""
-    if guard is None:
-        return ()
-    ap = guard.approaches
-    tasks = []
-    previous = None
-    for p in parkings:  # a handful of parkings
-        held_from = p.move_mjd if p.move_mjd is not None else start_mjd
-        for i in ap.hazards_overlapping(p.row, held_from, p.end_mjd):
-            tasks.append(HazardTask(p.row, "parked", float(ap.closest_mjd[i]), float(ap.sep_deg[i]),
-                                    float(ap.enter_mjd[i]), float(ap.exit_mjd[i])))
-        if p.move_mjd is not None and previous is not None:
-            sep, sun_alt = guard.move_sep_deg(previous, p.move_mjd, p.move_mjd + repark)
-            if sun_alt > SUNSET_ALTITUDE_DEG and sep[p.row] < guard.limit_deg:
-                tasks.append(HazardTask(p.row, "move", p.move_mjd, float(sep[p.row]), p.move_mjd,
-                                        p.move_mjd + repark))
-        previous = p.row
-    return tuple(sorted(tasks, key=lambda t: (t.enter_mjd, t.row)))
+def plan_from_parkings(sweep: Sweep, goal: Goal, parkings: list[Parking], guard: SunGuard | None = None,
+                       repark_minutes: float = 15.0) -> MonthPlan:
+    """The ``MonthPlan`` of given parkings (e.g. an optimised plan), counted from scratch."""
+    return _finish(sweep, goal, parkings, goal.done_minutes.astype(float).copy(),
+                   _usable_sorted(sweep), guard, repark_minutes / 1440.0)
 
 
 def _finish(sweep, goal, parkings, depth_before, tables, guard=None, repark=0.0) -> MonthPlan:
@@ -331,7 +262,8 @@ def _finish(sweep, goal, parkings, depth_before, tables, guard=None, repark=0.0)
         p.occurrences = _gain(tables[p.row], p.start_mjd, p.end_mjd)[1]
     return MonthPlan(sweep=sweep, goal=goal, parkings=parkings, depth_before=depth_before,
                      depth_after=_depth_of(sweep, goal, parkings, tables),
-                     hazards=_hazard_tasks(guard, parkings, repark, sweep.start_mjd))
+                     hazards=() if guard is None else guard.hazard_tasks(parkings, repark,
+                                                                         sweep.start_mjd))
 
 
 def _depth_of(sweep: Sweep, goal: Goal, parkings: list[Parking], tables) -> np.ndarray:
@@ -398,9 +330,13 @@ def gap_reasons(sweep: Sweep, goal: Goal, depth_after: np.ndarray,
 
 def move_slots(start_mjd: float, days: int, tz, window_intervals=None,
                move_hour_local: float = DEFAULT_MOVE_HOUR_LOCAL) -> list[MoveSlot]:
-    """One move slot per local day: the first window start that day, or ``move_hour_local``.
+    """One move slot per local day: the first window that starts that day, or ``move_hour_local``.
 
-    Days without a window have no slot. ``start_mjd`` is local midnight of the first day.
+    A window running on past midnight belongs to the day it started (Saturday 21:00-02:00
+    gives Saturday's slot, and Sunday's is Sunday's own first window); only on the first
+    day of the period may a window already under way at midnight give a slot, at
+    midnight, when none starts that day. Days without a window have no slot.
+    ``start_mjd`` is local midnight of the first day.
     """
     first = mjd_to_datetime_utc(start_mjd).astimezone(tz).date()
     slots = []
@@ -415,7 +351,10 @@ def move_slots(start_mjd: float, days: int, tz, window_intervals=None,
                 datetime(day.year, day.month, day.day, hour, minute, tzinfo=tz))))
             continue
         w = np.asarray(window_intervals).reshape(-1, 2)
-        starts_today = w[(w[:, 1] > midnight) & (w[:, 0] < next_midnight)]
+        starts_today = w[(w[:, 0] >= midnight) & (w[:, 0] < next_midnight)]
+        running = w[(w[:, 0] < midnight) & (w[:, 1] > midnight)]
         if starts_today.size:
-            slots.append(MoveSlot(d, float(max(starts_today[0, 0], midnight))))
+            slots.append(MoveSlot(d, float(starts_today[0, 0])))
+        elif d == 0 and running.size:
+            slots.append(MoveSlot(d, float(midnight)))
     return slots

@@ -6,6 +6,9 @@ docs/observation-log.md). One data row is one recording; it credits
 planner can see which bins still need time.
 
 - UTF-8 text, a leading byte-order mark is tolerated, LF or CRLF line ends.
+- A note that starts like a spreadsheet formula (``=``, ``+``, ``-``, ``@``) is
+  written with a leading apostrophe (``outputs.csv_text``), and one such
+  apostrophe is dropped on reading, so a note reads back as it was written.
 - Lines whose first non-blank character is ``#`` are comments; blank lines
   are skipped. The first remaining line is the header (``LOG_COLUMNS`` in any
   order, case-sensitive, spaces around names ignored).
@@ -29,15 +32,16 @@ import csv
 import difflib
 import io
 import math
-import os
 from collections.abc import Iterable, Mapping
 from dataclasses import dataclass, field
-from datetime import datetime, timedelta, timezone
+from datetime import datetime
 
 import numpy as np
 
 from .errors import UserError
-from .timebase import SECONDS_PER_DAY, UNIX_EPOCH_MJD, datetime_to_mjd_utc
+from .inputs import read_input
+from .outputs import csv_text, csv_untext
+from .timebase import LeapSecondError, datetime_to_mjd_utc, iso_utc, leap_instant_mjd, parse_iso
 
 LOG_COLUMNS = ("start_utc", "end_utc", "dec_deg", "l_from_deg", "l_to_deg", "minutes",
                "quality", "note")
@@ -53,7 +57,6 @@ MAX_MINUTES = 1440.0  # one day
 
 FORMAT_COMMENT = "# hiplan observation log, format 1 (see docs/observation-log.md)"
 
-_UNIX_EPOCH = datetime(1970, 1, 1, tzinfo=timezone.utc)
 # Typed values such as 0.3 with a bin width of 0.1 give 2.9999999999999996 on
 # division (a third of all 0.1-step values do); the nudge puts them in the bin
 # a person expects. At 1e-9 bin it is far below any longitude anyone writes.
@@ -93,19 +96,8 @@ class LogEntry:
 def read_log(path) -> list[LogEntry]:
     """Read and validate an observation log file (see the module docstring)."""
     src = str(path)
-    try:
-        with open(path, "rb") as handle:
-            size = os.fstat(handle.fileno()).st_size
-            if size > MAX_FILE_BYTES:
-                raise UserError(_too_big(src, size))
-            # One byte past the limit tells a file that grew while we read it.
-            data = handle.read(MAX_FILE_BYTES + 1)
-    except FileNotFoundError:
-        raise UserError(f"{src}:1: observation log not found") from None
-    except OSError as exc:
-        raise UserError(f"{src}:1: cannot read observation log ({exc.strerror or exc})") from None
-    if len(data) > MAX_FILE_BYTES:
-        raise UserError(_too_big(src, len(data)))
+    # Regular files only (a device or FIFO is refused unread), at most MAX_FILE_BYTES.
+    data = read_input(path, "observation log", MAX_FILE_BYTES, where=f"{src}:1")
     try:
         text = data.decode("utf-8")
     except UnicodeDecodeError as exc:
@@ -113,6 +105,24 @@ def read_log(path) -> list[LogEntry]:
         raise UserError(f"{src}:{line}: not UTF-8 text (byte 0x{data[exc.start]:02X}); "
                         "save the log as UTF-8") from None
     return parse_log_text(text, src)
+
+
+def read_logs(paths) -> list[LogEntry]:
+    """Read several logs and merge them: a recording in more than one counts once.
+
+    The same recording is the same start instant and longitude range (as
+    ``_check_duplicate`` judges within one file); the first file's row is kept.
+    Within one file a repeat is still an error.
+    """
+    merged: list[LogEntry] = []
+    seen: set[tuple] = set()
+    for path in paths:  # a few files
+        for entry in read_log(path):
+            key = (entry.start_mjd, entry.l_from_deg, entry.l_to_deg)
+            if key not in seen:
+                seen.add(key)
+                merged.append(entry)
+    return merged
 
 
 def parse_log_text(text: str, source: str) -> list[LogEntry]:
@@ -150,11 +160,6 @@ def parse_log_text(text: str, source: str) -> list[LogEntry]:
         raise UserError(f"{source}:{max(1, len(physical))}: missing header: no line names the "
                         f"columns (expected e.g. {','.join(REQUIRED_COLUMNS)})")
     return entries
-
-
-def _too_big(src: str, size: int) -> str:
-    return (f"{src}:1: file is {size / 1e6:.1f} MB, larger than the "
-            f"{MAX_FILE_BYTES / 1e6:g} MB limit for an observation log")
 
 
 def _hint(word: str, choices, cutoff: float = 0.6) -> str:
@@ -224,7 +229,7 @@ def _entry_from_texts(texts: Mapping[str, str], line: int, where: str) -> LogEnt
         # scores 0.57) and there are only three to confuse.
         raise UserError(f"{where}: quality '{quality}' must be good, fair or bad"
                         f"{_hint(quality.lower(), QUALITIES, cutoff=0.5)}")
-    note = value("note") or ""
+    note = csv_untext(value("note") or "")  # written guarded against spreadsheet formulas
     if "\n" in note or "\r" in note:
         raise UserError(f"{where}: note contains a line break; a row must fit on one line")
     return LogEntry(line=line, start_mjd=start_mjd, end_mjd=end_mjd, dec_deg=dec_deg,
@@ -234,16 +239,20 @@ def _entry_from_texts(texts: Mapping[str, str], line: int, where: str) -> LogEnt
 
 def _parse_time(text: str, column: str, where: str) -> float:
     """MJD (UTC) of an ISO 8601 time that carries Z or an explicit offset."""
-    iso = text[:-1] + "+00:00" if text.endswith(("Z", "z")) else text
     try:
-        moment = datetime.fromisoformat(iso)
+        moment, leap = parse_iso(text)  # second 60 only in a real leap second
     except ValueError:
         raise UserError(f"{where}: {column} '{text}' is not an ISO 8601 time "
                         "(e.g. 2027-03-02T19:26:10Z)") from None
     if moment.tzinfo is None:
         raise UserError(f"{where}: {column} '{text}' has no UTC offset; add Z for UTC "
                         "(2027-03-02T19:26:10Z) or an offset such as +01:00")
-    return datetime_to_mjd_utc(moment)
+    try:
+        return leap_instant_mjd(moment, text) if leap else datetime_to_mjd_utc(moment)
+    except LeapSecondError as exc:
+        raise UserError(f"{where}: {column} {exc}") from None
+    except OverflowError:
+        raise UserError(f"{where}: {column} '{text}' is out of range") from None
 
 
 def _parse_number(text: str, column: str, where: str, lo: float, hi: float,
@@ -389,7 +398,9 @@ def _mapping_texts(item: Mapping, where: str) -> dict[str, str]:
         elif isinstance(raw, (int, float)) and not isinstance(raw, bool):
             texts[key] = _number_text(float(raw))
         else:
-            texts[key] = str(raw)
+            # A note is the text itself, not a file cell: guarded like a written one, so
+            # reading it back (csv_untext) gives it unchanged.
+            texts[key] = csv_text(str(raw)) if key == "note" else str(raw)
     return texts
 
 
@@ -402,7 +413,7 @@ def _entry_texts(entry: LogEntry) -> dict[str, str]:
         "l_to_deg": _number_text(entry.l_to_deg),
         "minutes": _number_text(entry.minutes),
         "quality": entry.quality,
-        "note": entry.note,
+        "note": csv_text(entry.note),  # a note starting like a formula gets a leading '
     }
 
 
@@ -415,10 +426,6 @@ def _iso_from_mjd(mjd_utc: float) -> str:
     """ISO 8601 UTC with Z, to the millisecond (seconds only when whole).
 
     Float MJD near 6e4 days resolves ~0.6 microseconds, so rounding to the
-    millisecond recovers exactly the time that was read.
+    millisecond recovers exactly the time that was read (leap seconds included).
     """
-    ms = round((float(mjd_utc) - UNIX_EPOCH_MJD) * SECONDS_PER_DAY * 1000.0)
-    moment = _UNIX_EPOCH + timedelta(milliseconds=ms)
-    if ms % 1000 == 0:
-        return moment.strftime("%Y-%m-%dT%H:%M:%SZ")
-    return moment.isoformat(timespec="milliseconds").replace("+00:00", "Z")
+    return iso_utc(mjd_utc, milliseconds=True)

@@ -35,6 +35,9 @@ from .site import Site
 from .timebase import mjd_to_datetime_utc
 
 DEFAULT_TARGET_MINUTES = 60.0
+# Candidate declinations at most: a 0.1 deg step over every reachable range. Finer
+# steps than that are far below any small dish's beam and only cost time.
+MAX_CANDIDATES = 3000
 
 
 def parse_want(text: str | None, bin_width_deg: float = 1.0, option: str = "--want") -> np.ndarray:
@@ -78,8 +81,14 @@ def candidate_pointings(site: Site, step_deg: float | None = None,
     step = site.dish.beamwidth_deg / 2.0 if step_deg is None else float(step_deg)
     if not step > 0:
         raise UserError(f"--step: {step_deg} must be positive")
+    ranges = meridian_dec_ranges(site)
+    count = sum((r.hi_deg - r.lo_deg) / step + 3 for r in ranges)
+    if count > MAX_CANDIDATES:
+        raise UserError(f"--step: {step:g}° gives about {count:,.0f} declinations, more than the "
+                        f"{MAX_CANDIDATES:,} hiplan allows; use a coarser --step (the default is "
+                        f"half the beamwidth, {site.dish.beamwidth_deg / 2:.2f}°)")
     out: list[Pointing] = []
-    for rng in meridian_dec_ranges(site):  # at most three ranges
+    for rng in ranges:  # at most three ranges
         k_lo = int(np.ceil((rng.lo_deg + 90.0) / step - 1e-9))
         k_hi = int(np.floor((rng.hi_deg + 90.0) / step + 1e-9))
         grid = -90.0 + step * np.arange(k_lo, k_hi + 1)

@@ -8,18 +8,19 @@ one reader here takes a path because every plan consumer needs the same checks
 from __future__ import annotations
 
 import json
-from datetime import timedelta
+from datetime import datetime, timedelta
 from pathlib import Path
 
 import numpy as np
 
 from .errors import UserError
 from .galaxy import RotationModel
-from .month import HazardTask, MonthPlan, gap_reasons
+from .month import MonthPlan, gap_reasons
+from .monthsafety import HazardTask
 from .park import _facing, compact_bins
 from .report import _round_floats, period_summary
 from .timebase import iso_local, iso_utc, mjd_to_datetime_utc
-from .tuning import line_setup
+from .tuning import line_setup, shared_setups
 
 DRIFT_SCHEMA = "hiplan.plan/1"
 SURVEY_SCHEMA = "hiplan.survey/1"
@@ -30,6 +31,62 @@ _SURVEY_KEYS = ("site", "period", "settings", "blocks", "unscheduled")
 SURVEY_BLOCK_KINDS = ("target", "reference", "slew", "stow")
 
 
+def shown_span(start: datetime, end: datetime, outward: bool = True) -> tuple[datetime, datetime]:
+    """A plan interval as shown to people: whole minutes, one rule for every output.
+
+    Recordings, survey blocks and Sun hazards (``outward``): the start floored and the end
+    ceiled to the minute, so whoever follows the times covers at least the whole interval.
+    Windows to act in, such as a re-park (``outward=False``): the start ceiled and the end
+    floored, so acting at the times shown stays inside the window. The brief, the calendar,
+    the ``hiplan month`` and ``hiplan survey`` tables all use this rule. Aware or naive datetimes; seconds and
+    microseconds are dropped (every zone in use has whole-minute UTC offsets).
+    """
+    def floor(moment: datetime) -> datetime:
+        return moment.replace(second=0, microsecond=0)
+
+    def ceil(moment: datetime) -> datetime:
+        base = floor(moment)
+        return base if base == moment else base + timedelta(minutes=1)
+
+    return (floor(start), ceil(end)) if outward else (ceil(start), floor(end))
+
+
+# Survey blocks more than this far apart (minutes) start a new observing session (a new night or
+# school day; our choice): the brief groups its table by session, the calendar reminds once per
+# session.
+SESSION_GAP_MIN = 120.0
+
+
+def survey_sessions(blocks: list[dict]) -> list[list[dict]]:
+    """Survey plan blocks (in time order) grouped into observing sessions.
+
+    A gap of more than ``SESSION_GAP_MIN`` between the end of one block and the start of the
+    next starts a new session; a stow (the dish parked safe from the Sun, perhaps for hours)
+    ends its session when the dish arrives there. A block whose times cannot be read starts
+    a session of its own.
+    """
+    def moment(text):
+        try:
+            return datetime.fromisoformat(text) if isinstance(text, str) else None
+        except ValueError:
+            return None
+
+    sessions: list[list[dict]] = []
+    for block in blocks:
+        gap_min = None
+        if sessions:
+            last = sessions[-1][-1]
+            end = moment(last.get("start_utc" if last.get("kind") == "stow" else "end_utc"))
+            start = moment(block.get("start_utc"))
+            if end is not None and start is not None:
+                gap_min = (start - end).total_seconds() / 60.0
+        if gap_min is None or gap_min > SESSION_GAP_MIN:
+            sessions.append([block])
+        else:
+            sessions[-1].append(block)
+    return sessions
+
+
 MAX_PLAN_BYTES = 50_000_000  # a two-year plan is ~2 MB; anything this big is not a plan
 
 
@@ -38,24 +95,17 @@ def read_plan(path) -> dict:
 
     The one reader for every plan consumer (calendar, brief, charts).
     """
+    from .inputs import read_input  # regular files only (no device or FIFO), size-limited
     src = str(path)
-    if Path(path).is_dir():
-        raise UserError(f"{src}: is a folder, not a plan file")
+    data = read_input(path, "plan file", MAX_PLAN_BYTES)
     try:
-        with open(path, "rb") as handle:
-            data = handle.read(MAX_PLAN_BYTES + 1)
-    except FileNotFoundError:
-        raise UserError(f"{src}: plan file not found") from None
-    except OSError as exc:
-        raise UserError(f"{src}: cannot read plan file ({exc.strerror or exc})") from None
-    if len(data) > MAX_PLAN_BYTES:
-        raise UserError(f"{src}: larger than {MAX_PLAN_BYTES / 1e6:g} MB, not a plan file")
-    try:
-        doc = json.loads(data.decode("utf-8-sig"))
+        doc = json.loads(data.decode("utf-8-sig"))  # a leading BOM is allowed
     except UnicodeDecodeError:
         raise UserError(f"{src}: not UTF-8 text, so not a plan file") from None
     except json.JSONDecodeError as exc:
         raise UserError(f"{src}:{exc.lineno}: not valid JSON ({exc.msg}, column {exc.colno})") from None
+    except RecursionError:  # e.g. [[[[...]]]] thousands deep; a plan nests a few levels
+        raise UserError(f"{src}: not a plan file (its JSON is nested too deeply)") from None
     check_plan(doc, src)
     return doc
 
@@ -171,18 +221,28 @@ def drift_plan_document(plan: MonthPlan, settings: dict, model: RotationModel,
                     or [_tidy(np.floor(occ.l_start_deg[i] / bw) * bw)],
                     "reason": reason})
 
+    own_setups: list = [None] * n_days
     for d, items in recordings_by_day.items():
         days[d]["recordings"] = [rec for rec, *_ in items]
         bins = sorted({int(b) for _, bs, *_ in items for b in bs})
-        setup = line_setup(bins, bw, sweep.b_max_deg, min(x[2] for x in items), max(x[3] for x in items),
-                           site.receiver, model)
+        own_setups[d] = line_setup(bins, bw, sweep.b_max_deg, min(x[2] for x in items),
+                                   max(x[3] for x in items), site.receiver, model)
+    # One receiver setting for as many consecutive days as it serves (no daily retuning for
+    # a drift of a kHz or two); "retune" marks the days the operator must change it.
+    previous_centre = None
+    for d, setup in enumerate(shared_setups(own_setups)):
+        if setup is None:
+            continue
         a = setup.advice
         days[d]["tuning"] = {
             "centre_mhz": a.centre_mhz, "line_low_mhz": a.line_low_mhz, "line_high_mhz": a.line_high_mhz,
             "fits": a.fits, "margin_mhz": a.margin_mhz, "spike_clear": a.spike_clear,
             "channel_width_kms": a.channel_width_kms, "v_lsr_min_kms": setup.v_lsr_min_kms,
             "v_lsr_max_kms": setup.v_lsr_max_kms, "lsr_corr_min_kms": setup.lsr_corr_min_kms,
-            "lsr_corr_max_kms": setup.lsr_corr_max_kms}
+            "lsr_corr_max_kms": setup.lsr_corr_max_kms,
+            # Compared as the plan writes them (4 decimals, 0.1 kHz).
+            "retune": previous_centre is None or round(a.centre_mhz, 4) != round(previous_centre, 4)}
+        previous_centre = a.centre_mhz
     for day in days:
         day["skipped"].sort(key=lambda s: s["start_utc"])
     for task in plan.hazards:

@@ -33,8 +33,8 @@ from matplotlib.patches import FancyArrowPatch, Patch, Rectangle
 from .avoidance import SUNSET_ALTITUDE_DEG, sun_altitude_deg
 from .earth import earth_state, spherical_deg
 from .errors import UserError
-from .galactic import galactic_to_icrs_deg, plane_declination_deg
-from .timebase import mjd_to_datetime_utc, parse_instant
+from .galactic import PLANE_DEC_LIMIT_DEG, galactic_to_icrs_deg, plane_declination_deg
+from .timebase import mjd_to_datetime_utc, parse_instant, parse_iso
 from .windows import read_windows, window_intervals_mjd
 
 __all__ = [
@@ -162,7 +162,7 @@ def _edges_from_centres(centres: np.ndarray) -> np.ndarray:
 def coverage_atlas(dec_deg, bin_starts_deg, usable_hours, *, reachable_dec=(-90.0, 90.0),
                    wanted_bins=(), covered_bins=(), site_name: str = "", period_text: str = "",
                    b_max_deg: float = 3.0, bin_width_deg: float = 1.0, lower_dec_deg=None,
-                   lower_hours=None) -> Figure:
+                   lower_hours=None, covered_fraction=None) -> Figure:
     """Where a drifting beam crosses the galactic plane: declination x longitude atlas.
 
     ``dec_deg`` (D,) parked declinations (deg, rows, ascending); ``bin_starts_deg``
@@ -171,8 +171,12 @@ def coverage_atlas(dec_deg, bin_starts_deg, usable_hours, *, reachable_dec=(-90.
     period in usable passages (0 = none, left blank). ``reachable_dec`` (lo, hi)
     deg: the site's declination range, the rest is hatched. ``wanted_bins`` /
     ``covered_bins``: bin starts (deg) shown in a strip above the map (wanted,
-    and already covered by the observation log). The galactic plane b = 0 and
-    the band edges b = +/-``b_max_deg`` are drawn as declination curves.
+    and already covered by the observation log); ``covered_fraction`` (B,), when
+    given, shades that strip by the fraction of the target depth each bin has
+    (0..1, partial depth visible). The map spans the declinations where the plane
+    can be met (|dec| <= 62.9 + b_max, within the reachable range) so its cells
+    stay readable. The galactic plane b = 0 and
+    the strip edges b = +/-``b_max_deg`` are drawn as declination curves.
     ``lower_dec_deg`` (L,) / ``lower_hours`` (L, B): the same for settings below the
     pole (lower culmination, 12 h later), drawn as a second map under the first,
     over their own declination span, on the same colour scale.
@@ -193,7 +197,7 @@ def coverage_atlas(dec_deg, bin_starts_deg, usable_hours, *, reachable_dec=(-90.
         low_order = np.argsort(low_dec)
         low_dec, low_hours = low_dec[low_order], low_hours[low_order]
 
-    fig = Figure(figsize=(11.0, 9.0 if has_lower else 7.0), layout="constrained")
+    fig = Figure(figsize=(13.0, 9.0 if has_lower else 7.0), layout="constrained")
     if has_lower:
         low_span = max(float(np.ptp(low_dec)) + 10.0, 25.0)
         strip, ax, ax_low = fig.subplots(3, 1, sharex=True, height_ratios=[1, 9, 9 * low_span / 180.0])
@@ -223,8 +227,13 @@ def coverage_atlas(dec_deg, bin_starts_deg, usable_hours, *, reachable_dec=(-90.
         axis.grid(True, color="0.85", lw=0.5)
         axis.set_axisbelow(True)
 
-    ax.set_ylim(-90.0, 90.0)
-    ax.set_yticks(np.arange(-90.0, 91.0, 30.0))
+    # Only declinations where the beam can meet the strip carry data: show those.
+    reach = PLANE_DEC_LIMIT_DEG + b_max_deg + 3.0
+    y_lo, y_hi = max(-90.0, -reach, lo - 3.0), min(90.0, reach, hi + 3.0)
+    if y_hi - y_lo < 10.0:  # the plane is out of reach: show the reachable range itself
+        y_lo, y_hi = max(-90.0, lo - 5.0), min(90.0, hi + 5.0)
+    ax.set_ylim(y_lo, y_hi)
+    ax.set_yticks(np.arange(np.ceil(y_lo / 15.0) * 15.0, y_hi + 0.1, 15.0))
     ax.set_ylabel("Declination of the parked beam (deg)")
     if has_lower:
         ax_low.pcolormesh(l_edges, _edges_from_centres(low_dec), np.ma.masked_less_equal(low_hours, 0.0),
@@ -241,6 +250,11 @@ def coverage_atlas(dec_deg, bin_starts_deg, usable_hours, *, reachable_dec=(-90.
     else:
         _longitude_axis(ax)
 
+    if covered_fraction is not None:  # shaded by depth: partial coverage shows
+        frac = np.clip(np.asarray(covered_fraction, dtype=float).ravel(), 0.0, 1.0)
+        strip.pcolormesh(l_edges, [0.15, 0.85], np.ma.masked_less_equal(frac[None, :], 0.0),
+                         cmap="Greens", vmin=0.0, vmax=1.0, shading="flat")
+        covered_bins = ()
     for row, (bins, colour) in enumerate(((covered_bins, OKABE_ITO["green"]),
                                           (wanted_bins, OKABE_ITO["orange"]))):
         runs = _runs(bins, bin_width_deg)
@@ -257,11 +271,13 @@ def coverage_atlas(dec_deg, bin_starts_deg, usable_hours, *, reachable_dec=(-90.
     handles = [
         Line2D([], [], color=OKABE_ITO["vermillion"], lw=1.8, label="galactic plane (b = 0°)"),
         Line2D([], [], color=OKABE_ITO["vermillion"], lw=0.9, ls="--",
-               label=f"band edges (b = ±{b_max_deg:g}°)"),
+               label=f"strip edges (b = ±{b_max_deg:g}°)"),
         Patch(facecolor="none", edgecolor=_GREY, hatch="//",
               label=f"not reachable (outside Dec {lo:.1f}° to {hi:.1f}°)"),
         Patch(facecolor=OKABE_ITO["orange"], label="wanted bins"),
-        Patch(facecolor=OKABE_ITO["green"], label="already covered (observation log)"),
+        Patch(facecolor=OKABE_ITO["green"],
+              label="already covered (observation log" + ("; shade = share of the target depth)"
+                                                          if covered_fraction is not None else ")")),
     ]
     fig.legend(handles=handles, loc="outside lower center", ncols=3, fontsize=9)
     return fig
@@ -660,8 +676,9 @@ def survey_chart(plan: dict) -> Figure:
     last_l = None
     elev_t, elev_v = [], []
     for k, blk in enumerate(blocks):
-        t0 = mdates.date2num(datetime.fromisoformat(blk["start_utc"]))
-        t1 = mdates.date2num(datetime.fromisoformat(blk["end_utc"]))
+        # parse_iso: a time in a leap second (second 60) reads as second 59
+        t0 = mdates.date2num(parse_iso(blk["start_utc"])[0])
+        t1 = mdates.date2num(parse_iso(blk["end_utc"])[0])
         if blk.get("kind") == "slew":
             nxt = next((b for b in blocks[k + 1:] if b.get("kind") != "slew"), None)
             if last_l is not None and nxt is not None and nxt.get("l_deg") is not None:
@@ -689,8 +706,8 @@ def survey_chart(plan: dict) -> Figure:
     elev.set_ylabel("Elevation of the dish (deg)", color=OKABE_ITO["vermillion"])
     elev.tick_params(axis="y", colors=OKABE_ITO["vermillion"])
 
-    t_first = mdates.date2num(datetime.fromisoformat(blocks[0]["start_utc"]))
-    t_last = mdates.date2num(datetime.fromisoformat(blocks[-1]["end_utc"]))
+    t_first = mdates.date2num(parse_iso(blocks[0]["start_utc"])[0])
+    t_last = mdates.date2num(parse_iso(blocks[-1]["end_utc"])[0])
     pad = 0.02 * (t_last - t_first)
     ax.set_xlim(t_first - pad, t_last + pad)
     if l_all.size:

@@ -35,11 +35,23 @@ PASSAGE_FIELDS = (
 
 
 def period_summary(start_mjd: float, end_mjd: float, tz: ZoneInfo) -> dict:
+    """The ``period`` object: its ends (UTC and local) and, for people, its first and last
+    local day (the end is the midnight after the last day, so both are inclusive)."""
     return {
         "start_utc": iso_utc(start_mjd), "end_utc": iso_utc(end_mjd),
         "start_local": iso_local(start_mjd, tz), "end_local": iso_local(end_mjd, tz),
         "days": round(end_mjd - start_mjd, 4),
+        "first_day_local": mjd_to_datetime_utc(start_mjd).astimezone(tz).date().isoformat(),
+        "last_day_local": mjd_to_datetime_utc(end_mjd - 1.0 / 86400).astimezone(tz).date().isoformat(),
     }
+
+
+def period_days_text(period: dict) -> str:
+    """'2027-03-01 – 2027-03-31': first and last local day, both inclusive (one convention
+    for every output; older documents without the fields fall back to the end instant)."""
+    first = period.get("first_day_local") or period["start_local"][:10]
+    last = period.get("last_day_local") or period["end_local"][:10]
+    return first if first == last else f"{first} – {last}"
 
 
 def passage_record(p: Passage, tz: ZoneInfo) -> dict:
@@ -111,13 +123,25 @@ def to_json(document: dict) -> str:
 
 
 def to_csv(records: list[dict], fields: tuple[str, ...]) -> str:
-    """CSV with a header row; list values are joined with ';'."""
+    """CSV with a header row; list values are joined with ';'.
+
+    Text cells that start like a spreadsheet formula (a target named ``=cmd``) get a
+    leading apostrophe (``outputs.csv_text``); numbers, and lists of numbers, never do.
+    """
+    from .outputs import csv_text
+
+    def cell(value):
+        if isinstance(value, list):
+            text = ";".join(str(v) for v in value)
+            numeric = all(isinstance(v, (int, float)) and not isinstance(v, bool) for v in value)
+            return text if numeric else csv_text(text)
+        return csv_text(value) if isinstance(value, str) else value
+
     buf = io.StringIO()
     writer = csv.DictWriter(buf, fieldnames=list(fields), extrasaction="ignore", lineterminator="\n")
     writer.writeheader()
     for rec in records:
-        writer.writerow({k: ";".join(str(v) for v in rec[k]) if isinstance(rec.get(k), list)
-                         else rec.get(k) for k in fields})
+        writer.writerow({k: cell(rec.get(k)) for k in fields})
     return buf.getvalue()
 
 
@@ -273,8 +297,12 @@ def _round_floats(obj, digits=4):
 def tune_document(site: Site, setup, model, lsr_definition: str, start_mjd: float, end_mjd: float,
                   pointing: Pointing | None = None, b_max_deg: float | None = None, l_bins=None,
                   depth=None, drift_s: float | None = None, target=None, pointed=None,
-                  plan_source=None) -> dict:
-    """Receiver set-up advice as a JSON-ready document (frequencies MHz, velocities km/s)."""
+                  plan_source=None, passage=None) -> dict:
+    """Receiver set-up advice as a JSON-ready document (frequencies MHz, velocities km/s).
+
+    ``passage``: (number, count, Passage) when the advice is for one passage only
+    (``hiplan tune --passage N``); the document then says which one (``passage``).
+    """
     from dataclasses import asdict
     advice = asdict(setup.advice)
     doc = {
@@ -300,6 +328,12 @@ def tune_document(site: Site, setup, model, lsr_definition: str, start_mjd: floa
                       "rms_per_day_k": d.rms_per_day_k, "days_to_target": d.days_to_target}
                      for d in depth],
         }
+    if passage is not None:
+        number, count, p = passage
+        doc["passage"] = {"number": number, "of": count,
+                          **{k: v for k, v in passage_record(p, site.tz).items()
+                             if k in ("start_utc", "end_utc", "start_local", "end_local",
+                                      "peak_local", "duration_min", "l_start_deg", "l_end_deg")}}
     if plan_source is not None:
         path, count, bins, bw = plan_source
         doc["plan"] = {"file": path, "recordings": count}
@@ -322,6 +356,17 @@ def tune_renderable(doc: dict):
         p = doc["pointing"]
         head.append(f"\nParked beam: elevation {p['alt_deg']:.2f}°, azimuth {p['az_deg']:.1f}°, "
                     f"Dec {p['dec_deg']:+.2f}°; longitudes {doc['l_ranges']}")
+        if "passage" in doc:
+            from datetime import datetime
+
+            from .planfile import shown_span  # planfile imports this module
+            g = doc["passage"]
+            start, end = shown_span(*(datetime.fromisoformat(g[k]) for k in ("start_local", "end_local")))
+            ends = f"{end:%H:%M}" if end.date() == start.date() else f"{end:%a} {end.day} {end:%b %H:%M}"
+            offset = start.strftime("%z")
+            head.append(f"\nPassage {g['number']} of {g['of']} only: {start:%a} {start.day} "
+                        f"{start:%b %Y %H:%M}–{ends} local (UTC{offset[:3]}:{offset[3:]}), "
+                        f"l {g['l_start_deg']:.1f}° → {g['l_end_deg']:.1f}°")
     elif "plan" in doc:
         head.append(f"\nPlan {doc['plan']['file']}: {doc['plan']['recordings']} recordings, "
                     f"longitudes {doc['l_ranges']}")
@@ -329,7 +374,7 @@ def tune_renderable(doc: dict):
         g = doc["target"]
         head.append(f"\nPosition: l {g['l_deg']:.2f}°, b {g['b_deg']:+.2f}° "
                     f"(RA {g['ra_deg']:.3f}°, Dec {g['dec_deg']:+.3f}°)")
-    head.append(f"\nPeriod {doc['period']['start_local'][:10]} – {doc['period']['end_local'][:10]}, "
+    head.append(f"\nPeriod {period_days_text(doc['period'])}, "
                 f"LSR definition {doc['lsr_definition']}, rotation model r0 "
                 f"{doc['rotation_model']['r0_kpc']} kpc, Θ0 {doc['rotation_model']['theta0_kms']} km/s")
     table = Table(box=box.SIMPLE_HEAD, show_header=False, pad_edge=False)
@@ -435,6 +480,11 @@ def _tidy(value: float):
     return int(value) if float(value).is_integer() else float(value)
 
 
+def _log_text(log) -> str:
+    """The log file(s) a result used: one name, or several joined."""
+    return ", ".join(log) if isinstance(log, list) else str(log)
+
+
 PARK_LEGEND = (
     "Elev°: elevation on the meridian and the side the dish faces (N/S/Z = zenith); \"low\" = "
     "below the pole, where the declination passes 12 h after its highest point. Feed: ok, or HAZARD when the Sun passes within the site's sun_hazard_deg of "
@@ -447,17 +497,19 @@ PARK_LEGEND = (
 
 
 def park_renderable(doc: dict, top: int):
+    from .windows import describe_window_texts
     s, st = doc["site"], doc["settings"]
     head = Text()
     head.append(s["name"], style="bold")
     head.append(f"  ({s['latitude_deg']:+.2f}°, {s['longitude_deg']:+.2f}°)  "
-                f"{doc['period']['start_local'][:10]} – {doc['period']['end_local'][:10]}\n")
+                f"{period_days_text(doc['period'])}\n")
     night = st.get("night") or "horizon"
     head.append(f"Beam {st['beamwidth_deg']:.2f}°, strip |b| ≤ {st['b_max_deg']:g}°, wanted l {st['want']}, "
                 f"target {st['target_minutes']:g} min per bin"
                 + (f", night only ({night})" if st["night_only"] else "")
-                + (f", windows: {'; '.join(st['windows'])}" if st["windows"] else "")
-                + (f", log {st['log']}" if st["log"] else "")
+                + (f", windows: {'; '.join(describe_window_texts(st['windows']))}"
+                   if st["windows"] else "")
+                + (f", log {_log_text(st['log'])}" if st["log"] else "")
                 + f", feed safety: Sun ≥ {st.get('sun_hazard_deg', s.get('sun_hazard_deg', 10)):g}° "
                   "from the beam")
     table = Table(box=box.SIMPLE_HEAD, header_style="bold", pad_edge=False)
@@ -512,15 +564,28 @@ def _hhmm(iso_local_text: str) -> str:
 
 
 def month_renderable(doc: dict):
-    """Day-by-day table and coverage summary of a drift plan."""
+    """Day-by-day table and coverage summary of a drift plan.
+
+    Times are rounded as in the brief and the calendar (``planfile.shown_span``): recordings
+    outward, move windows inward; a receiver centre to set anew is marked "retune".
+    """
+    from datetime import datetime
+
+    from .planfile import shown_span  # planfile imports this module
+    from .windows import describe_window_texts
+
+    def span(start: str, end: str, outward: bool = True) -> str:
+        a, b = shown_span(datetime.fromisoformat(start), datetime.fromisoformat(end), outward)
+        return f"{a:%H:%M}–{b:%H:%M}"
+
     s, st, summ = doc["site"], doc["settings"], doc["summary"]
     head = Text()
     head.append(s["name"], style="bold")
-    last_day = doc["days"][-1]["date"] if doc["days"] else doc["period"]["end_local"][:10]
-    head.append(f"  {doc['period']['start_local'][:10]} – {last_day}  "
+    head.append(f"  {period_days_text(doc['period'])}  "
                 f"(target {st['target_minutes']:g} min per bin"
                 + (f", night only ({st.get('night') or 'horizon'})" if st["night_only"] else "")
-                + (f"; windows: {'; '.join(st['windows'])}" if st["windows"] else "") + ")")
+                + (f"; windows: {'; '.join(describe_window_texts(st['windows']))}"
+                   if st["windows"] else "") + ")")
     head.append(f"\nFeed safety: no setting or move brings the Sun within "
                 f"{st.get('sun_hazard_deg', s.get('sun_hazard_deg', 10)):g}° of the beam"
                 + (" (overridden: --allow-sun-hazard)" if st.get("allow_sun_hazard") else "") + ".")
@@ -540,12 +605,14 @@ def month_renderable(doc: dict):
             if park["move"] and before is not None and before["dec_deg"] != park["dec_deg"]:
                 dish = f"Dec {before['dec_deg']:+.1f} → " + dish
         previous = park or previous
-        move = (f"{_hhmm(park['move_start_local'])}–{_hhmm(park['move_end_local'])}"
+        move = (span(park["move_start_local"], park["move_end_local"], outward=False)
                 if park and park["move"] else "")
-        recs = "\n".join(f"{_hhmm(r['start_local'])}–{_hhmm(r['end_local'])} "
+        recs = "\n".join(f"{span(r['start_local'], r['end_local'])} "
                          f"l {r['l_start_deg']:.0f}→{r['l_end_deg']:.0f}" for r in day["recordings"])
         new = compact_ranges([b for r in day["recordings"] for b in r["new_bins"]])
         tune = f"{day['tuning']['centre_mhz']:.3f}" if day["tuning"] else ""
+        if tune and day["tuning"].get("retune"):
+            tune = f"retune {tune}"
         skipped = ", ".join(f"{_hhmm(k['start_local'])} {k['reason']}" for k in day["skipped"])
         hazards = day.get("sun_hazards") or []
         if hazards:
@@ -557,6 +624,22 @@ def month_renderable(doc: dict):
         foot.append(warning + "\n", style="bold red")
     foot.append(f"Wanted bins at target depth: {summ['done_before']} before → {summ['done_after']} after "
                 f"of {summ['wanted_bins']}, with {summ['moves']} moves.\n", style="bold")
+    if summ.get("upper_bound") is not None:
+        opt = summ.get("optimizer") or {}
+        foot.append(f"No plan under these rules brings more than {summ['upper_bound']} to target "
+                    f"(bound from the {opt.get('bound_source', 'solver')}); the greedy alone "
+                    f"reached {opt.get('greedy_bins', '?')}, {opt.get('method', '')}: "
+                    f"{summ['done_after']}.\n")
     for gap in summ["gaps"]:
         foot.append(f"Still short: l {gap['l_range']} — {gap['reason']}\n")
+    trade = summ.get("tradeoff")
+    if trade:
+        table2 = Table(box=box.SIMPLE_HEAD, header_style="bold", pad_edge=False,
+                       title="Moves against bins at target", title_justify="left")
+        for name in ("At most … moves", "Bins at target", "Moves used", "Bound"):
+            table2.add_column(name, justify="right")
+        for t in trade:
+            table2.add_row("any" if t["max_moves"] is None else str(t["max_moves"]), str(t["bins"]),
+                           str(t["moves"]), str(t["upper_bound"]))
+        return Group(head, table, foot, table2)
     return Group(head, table, foot)

@@ -33,6 +33,7 @@ from zoneinfo import ZoneInfo, ZoneInfoNotFoundError
 import numpy as np
 
 from .errors import UserError
+from .inputs import check_plain, read_input_text
 
 # HI hyperfine rest frequency, Hellwig et al. 1970, IEEE Trans. Instrum. Meas. IM-19, 200.
 HI_REST_FREQUENCY_MHZ = 1420.405751768
@@ -282,6 +283,8 @@ def site_from_dict(raw: dict, src: str = "<site>") -> Site:
 
     if not s["name"].strip():
         raise UserError(f"{src}: [site] name is empty")
+    # The name goes into every output, calendars among them: one line, no control characters.
+    check_plain(s["name"], src, "[site] name")
     try:
         ZoneInfo(s["timezone"])
     except (ZoneInfoNotFoundError, ValueError):
@@ -328,16 +331,15 @@ def site_from_dict(raw: dict, src: str = "<site>") -> Site:
 
 
 def read_site_file(path: Path) -> Site:
-    """Read and validate one TOML site file."""
+    """Read and validate one TOML site file (UTF-8, a leading BOM allowed, at most 10 MB)."""
     src = str(path)
+    text = read_input_text(path, "site file")
     try:
-        raw = tomllib.loads(Path(path).read_text(encoding="utf-8"))
-    except FileNotFoundError:
-        raise UserError(f"{src}: site file not found") from None
-    except (OSError, UnicodeDecodeError) as exc:
-        raise UserError(f"{src}: cannot read site file ({exc})") from None
+        raw = tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
         raise UserError(f"{src}: not valid TOML ({exc})") from None
+    except RecursionError:
+        raise UserError(f"{src}: not a site file (arrays or tables nested too deeply)") from None
     return site_from_dict(raw, src)
 
 
@@ -374,16 +376,21 @@ def available_sites() -> dict[str, Path]:
 
 def load_site(spec: str | None = None) -> Site:
     """Load a site by file path, by file stem in sites/, or the bundled default."""
+    return read_site_file(site_file_path(spec))
+
+
+def site_file_path(spec: str | None = None) -> Path:
+    """The file ``load_site(spec)`` reads: a path, a file stem in sites/, or the bundled default."""
     spec = DEFAULT_SITE if spec is None else spec
     path = Path(spec)
     if path.suffix == ".toml" or path.exists() or "/" in spec:
-        return read_site_file(path)
+        return path
     known = available_sites()
     if spec in known:
-        return read_site_file(known[spec])
+        return known[spec]
     wanted = _slug(spec)
     for stem, candidate in known.items():
         if _slug(stem) == wanted:
-            return read_site_file(candidate)
+            return candidate
     names = ", ".join(known) or "none found"
     raise UserError(f"--site: no site file or site named '{spec}' (known: {names}){_hint(spec, known)}")

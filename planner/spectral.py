@@ -22,7 +22,7 @@ works equally well either way.
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import numpy as np
 
@@ -32,6 +32,12 @@ from .site import HI_REST_FREQUENCY_MHZ, SPEED_OF_LIGHT_KMS, Receiver
 # Preferred tuning step: SDR front ends tune in 1 Hz or finer, but a 1 kHz value
 # is easier to type and to read back from a log; finer steps only as a fallback.
 _TUNING_STEPS_MHZ = (1e-3, 1e-6)
+# Clearance kept between the band-centre spike and the line (MHz): our choice, about
+# 10 km/s, a little more than the spike's width on common SDR receivers.
+SPIKE_GUARD_MHZ = 0.05
+# Float tolerance when checking that a line lies inside the band (MHz): sums of values
+# near 1420 MHz carry rounding errors of ~1e-13 MHz; 1 mHz is far below any channel.
+_FIT_TOLERANCE_MHZ = 1e-9
 
 
 def _check_rest(rest_mhz) -> float:
@@ -151,7 +157,8 @@ def _fmt_mhz(freq_mhz: float) -> str:
 
 
 def tuning_advice(v_lsr_min_kms, v_lsr_max_kms, lsr_corr_min_kms, lsr_corr_max_kms,
-                  receiver: Receiver, edge_fraction=0.1, spike_guard_mhz=0.05) -> TuningAdvice:
+                  receiver: Receiver, edge_fraction=0.1,
+                  spike_guard_mhz=SPIKE_GUARD_MHZ) -> TuningAdvice:
     """Recommend a receiver centre frequency for an HI velocity envelope.
 
     Units: velocities km/s (LSR, radio convention), frequencies MHz. The line span
@@ -246,3 +253,75 @@ def tuning_advice(v_lsr_min_kms, v_lsr_max_kms, lsr_corr_min_kms, lsr_corr_max_k
         lsr_corr_min_kms=corr_lo_kms, lsr_corr_max_kms=corr_hi_kms,
         notes=tuple(notes),
     )
+
+
+def shared_centre_mhz(advices, spike_guard_mhz=SPIKE_GUARD_MHZ) -> float | None:
+    """One receiver centre (MHz) serving several tunings of one receiver, or None.
+
+    The centre must keep every line that fits its usable band (``fits``) inside that band,
+    and keep the band-centre spike at least ``spike_guard_mhz`` below every line whose own
+    advice had it clear (``spike_clear``: ``tuning_advice`` puts such a line in the upper
+    half of the band), so no observation is served worse than by its own advice. Of the
+    frequencies allowed, the midpoint of the range on the coarsest tuning grid that stays
+    inside it is taken, as ``tuning_advice`` does: one advice gives back its own centre.
+    Lines that do not fit even alone add no condition; when none fits, the midpoint of all
+    the lines together is taken (rounded to 1 kHz). None when no frequency serves them all.
+    """
+    advices = list(advices)
+    if not advices:
+        raise ValueError("no tunings to share a centre")
+    fitting = [a for a in advices if a.fits]
+    if not fitting:
+        mid_mhz = 0.5 * (min(a.line_low_mhz for a in advices) + max(a.line_high_mhz for a in advices))
+        step_mhz = _TUNING_STEPS_MHZ[0]
+        return _centre_within(mid_mhz - step_mhz / 2, mid_mhz + step_mhz / 2)
+    half_mhz = 0.5 * min(a.usable_bandwidth_mhz for a in advices)
+    lo_mhz = max(a.line_high_mhz for a in fitting) - half_mhz
+    hi_mhz = min(a.line_low_mhz for a in fitting) + half_mhz
+    clear = [a for a in advices if a.spike_clear]
+    if clear:
+        hi_mhz = min(hi_mhz, min(a.line_low_mhz for a in clear) - spike_guard_mhz)
+    if lo_mhz > hi_mhz:
+        return None
+    return _centre_within(lo_mhz, hi_mhz)
+
+
+def tuning_at_centre(advice: TuningAdvice, centre_mhz: float,
+                     spike_guard_mhz=SPIKE_GUARD_MHZ) -> TuningAdvice:
+    """The same line and receiver as ``advice``, with the receiver tuned to ``centre_mhz`` (MHz).
+
+    ``fits`` is True when the line lies inside the usable band around the new centre;
+    ``margin_mhz`` stays the spare bandwidth (usable minus line span) when it does, and is
+    otherwise minus how far the line runs past a band edge (or the shortfall of a line wider
+    than the band, whichever is worse). The spike fields follow the new centre.
+    """
+    centre = _finite("centre_mhz", centre_mhz)
+    half_mhz = 0.5 * advice.usable_bandwidth_mhz
+    overhang_mhz = max((centre - half_mhz) - advice.line_low_mhz,
+                       advice.line_high_mhz - (centre + half_mhz))
+    spare_mhz = advice.usable_bandwidth_mhz - advice.line_span_mhz
+    fits = overhang_mhz <= _FIT_TOLERANCE_MHZ
+    margin_mhz = spare_mhz if fits else min(spare_mhz, -overhang_mhz)
+    spike_clear = (centre <= advice.line_low_mhz - spike_guard_mhz
+                   or centre >= advice.line_high_mhz + spike_guard_mhz)
+    spike_v_topo_kms = float(radio_velocity_kms(centre))
+    spike_lo_kms = spike_v_topo_kms + advice.lsr_corr_min_kms
+    spike_hi_kms = spike_v_topo_kms + advice.lsr_corr_max_kms
+    line_text = (f"The line spans {advice.line_low_mhz:.3f} to {advice.line_high_mhz:.3f} MHz "
+                 f"({advice.line_span_mhz:.3f} MHz) over the velocity and LSR-correction ranges")
+    notes = [f"Tune the receiver centre to {_fmt_mhz(centre)} MHz."]
+    if fits:
+        notes.append(f"{line_text}; it lies inside the {advice.usable_bandwidth_mhz:.3f} MHz usable "
+                     f"band, leaving {spare_mhz:.3f} MHz spare.")
+    else:
+        notes.append(f"{line_text}; at this centre it runs {-margin_mhz:.3f} MHz past the usable band.")
+    where = "outside" if spike_clear else "inside"
+    notes.append(f"The centre spike appears at LSR velocity {spike_lo_kms:.1f} to {spike_hi_kms:.1f} "
+                 f"km/s, {where} the line" + ("." if spike_clear else
+                                              ": blank or interpolate the channels there."))
+    notes.append(f"Each channel is {advice.channel_width_khz:.3f} kHz = "
+                 f"{advice.channel_width_kms:.3f} km/s wide.")
+    return replace(advice, centre_mhz=centre, fits=bool(fits), margin_mhz=margin_mhz,
+                   offset_mhz=centre - 0.5 * (advice.line_low_mhz + advice.line_high_mhz),
+                   spike_clear=bool(spike_clear), spike_v_lsr_min_kms=spike_lo_kms,
+                   spike_v_lsr_max_kms=spike_hi_kms, notes=tuple(notes))

@@ -342,3 +342,72 @@ def move_sun_sep_deg(site: Site, start: Pointing, ends: list[Pointing], t0_mjd: 
                            float(dish.slew_az_deg_s), float(dish.slew_el_deg_s),
                            s_alt[None, :], s_az[None, :])
     return sep.min(axis=1), float(s_alt.max())
+
+
+def move_safe_matrix(site: Site, pointings: list[Pointing], t0_mjd: float, t1_mjd: float,
+                     limit_deg: float | None = None) -> np.ndarray:
+    """(R, R) True where moving the dish from pointing a to pointing b during [t0, t1] keeps
+    the visible Sun (above -0.833 deg) at least ``limit_deg`` from the beam all the way.
+
+    The same path models as ``move_sun_sep_deg`` (meridian arc for transit and fixed
+    mounts; both axes at their rates, the short way round, for alt-az mounts), the Sun
+    each minute. For alt-az mounts a cheap lower bound (the distance from the Sun to the
+    box of azimuths and elevations the path stays in) clears most pairs before any path
+    is traced, and a traced path is checked against the Sun at mid-move with its drift
+    to either end added to the limit. Diagonal entries (no move) are True.
+    """
+    limit = site.rules.sun_hazard_deg if limit_deg is None else float(limit_deg)
+    n_rows = len(pointings)
+    ok = np.ones((n_rows, n_rows), dtype=bool)
+    n = max(2, int(np.ceil((t1_mjd - t0_mjd) * 1440.0)) + 1)
+    enu, s_alt, s_az = _sun_enu(site, np.linspace(t0_mjd, t1_mjd, n))
+    up = s_alt > SUNSET_ALTITUDE_DEG
+    if not up.any() or n_rows < 2:
+        return ok
+    enu, s_alt, s_az = enu[up], s_alt[up], s_az[up]
+    alt = np.array([p.alt_deg for p in pointings])
+    az = np.array([p.az_deg for p in pointings])
+    dish = site.dish
+    if dish.mount != "altaz" or dish.slew_az_deg_s is None or dish.slew_el_deg_s is None:
+        theta = meridian_angle_deg(alt, az)
+        north, upc = enu[:, 1], enu[:, 2]
+        along = np.degrees(np.arctan2(upc, -north))  # (S,)
+        off_plane = np.degrees(np.arcsin(np.clip(np.abs(enu[:, 0]), 0.0, 1.0)))
+        rad = np.radians(theta)[:, None]
+        to_end = np.degrees(np.arccos(np.clip(-north * np.cos(rad) + upc * np.sin(rad), -1, 1)))
+        lo = np.minimum(theta[:, None], theta[None, :])[..., None]
+        hi = np.maximum(theta[:, None], theta[None, :])[..., None]
+        within = (along >= lo) & (along <= hi)
+        ends = np.minimum(to_end[:, None, :], to_end[None, :, :])
+        dist = np.where(within, off_plane, ends).min(axis=-1)
+        ok = dist >= limit
+    else:
+        to_az = az[:, None] + _wrap180(az[None, :] - az[:, None])  # the short way round
+        lo_az = np.minimum(az[:, None], to_az)[..., None]
+        span = np.abs(to_az - az[:, None])[..., None]
+        lo_el = np.minimum(alt[:, None], alt[None, :])[..., None]
+        hi_el = np.maximum(alt[:, None], alt[None, :])[..., None]
+        # Lower bound: a box point is at least the altitude gap from the Sun, and at least
+        # asin(cos(alt_sun) sin(d_az)) when its azimuth is d_az <= 90 deg from the Sun's.
+        el_gap = np.maximum(np.maximum(lo_el - s_alt, s_alt - hi_el), 0.0)
+        past = np.mod(s_az - lo_az, 360.0)
+        d_az = np.where(past <= span, 0.0, np.minimum(past - span, 360.0 - past))
+        az_gap = np.degrees(np.arcsin(np.cos(np.radians(s_alt))
+                                      * np.sin(np.radians(np.minimum(d_az, 90.0)))))
+        near = np.maximum(el_gap, az_gap) < limit  # (R, R, S)
+        pair_a, pair_b = np.nonzero(near.any(axis=-1))
+        rates = (float(dish.slew_az_deg_s), float(dish.slew_el_deg_s))
+
+        def traced(a, b, sun_alt, sun_az):
+            return slew_sun_sep_deg(az[a][:, None], alt[a][:, None], to_az[a, b][:, None],
+                                    alt[b][:, None], *rates, sun_alt[None, :], sun_az[None, :])
+
+        if pair_a.size:
+            # Against the Sun mid-window, with the Sun's drift to either end as margin
+            # (conservative by at most that drift, 1.9 deg for a 15-minute move).
+            mid = s_alt.size // 2
+            drift = SUN_DRIFT_DEG_PER_MIN * (t1_mjd - t0_mjd) * 1440.0 / 2.0
+            sep_mid = traced(pair_a, pair_b, s_alt[mid:mid + 1], s_az[mid:mid + 1])[:, 0]
+            ok[pair_a, pair_b] = sep_mid >= limit + drift
+    np.fill_diagonal(ok, True)
+    return ok

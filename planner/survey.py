@@ -1178,7 +1178,7 @@ def survey_document(plan: SurveyPlan, period: dict) -> dict:
             "night_only": s.night_only,
             "night": s.night if s.night_only else None,
             "night_sun_alt_deg": s.night_sun_alt_deg if s.night_only else None,
-            "windows": [] if s.availability.is_always else s.availability.describe(),
+            "windows": s.availability.normalised(),  # machine-readable; [] = any time
             "sun_min_sep_deg": s.sun_min_sep_deg,
             "sun_hazard_deg": s.sun_hazard_deg,
             "moon_min_sep_deg": s.moon_min_sep_deg,
@@ -1188,6 +1188,9 @@ def survey_document(plan: SurveyPlan, period: dict) -> dict:
             "reference": None if s.reference is None else s.reference.describe(),
             "reference_minutes": s.reference_minutes,
             "step_s": s.step_s,
+            # The drive (encoder) azimuth range, which may exceed 360 deg: the cable wrap.
+            "azimuth_min_deg": plan.site.dish.azimuth_min_deg,
+            "azimuth_max_deg": plan.site.dish.azimuth_max_deg,
         },
         "blocks": [block_record(b, tz) for b in plan.blocks],
         "unscheduled": [{"name": u.name, "reason": u.reason} for u in plan.unscheduled],

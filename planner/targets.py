@@ -43,6 +43,7 @@ from pathlib import Path
 
 from .errors import UserError
 from .galactic import galactic_to_icrs_deg, icrs_to_galactic_deg
+from .inputs import check_plain, read_input_text
 
 MAX_TARGETS = 5000  # a bigger grid is almost surely a typo in the step
 MAX_REPEATS = 1000
@@ -229,12 +230,7 @@ def read_targets(path, minutes: float, priority: float = 1.0, repeats: int = 1) 
     suffix = Path(path).suffix.lower()
     if suffix not in (".csv", ".toml"):
         raise UserError(f"{src}: target files must end in .csv or .toml")
-    try:
-        text = Path(path).read_text(encoding="utf-8-sig")
-    except FileNotFoundError:
-        raise UserError(f"{src}: target file not found") from None
-    except (OSError, UnicodeDecodeError) as exc:
-        raise UserError(f"{src}: cannot read target file ({exc})") from None
+    text = read_input_text(path, "target file")  # UTF-8, a leading BOM allowed, at most 10 MB
     if suffix == ".csv":
         return parse_targets_csv(text, src, minutes, priority, repeats)
     return parse_targets_toml(text, src, minutes, priority, repeats)
@@ -285,8 +281,10 @@ def _target_from_fields(fields: dict, where: str, minutes: float, priority: floa
         name = str(name).strip()
         if not name:
             name = None
-        elif len(name) > 80 or any(ch in name for ch in "\r\n\t"):
+        elif len(name) > 80:
             raise UserError(f"{where}: name must be one line of at most 80 characters")
+        else:
+            check_plain(name, where, "name", allow_tab=False)
     if has_gal:
         l_deg = _number(fields["l"], "l", where, 0, 360)
         b_deg = _number(fields["b"], "b", where, -90, 90)
@@ -301,7 +299,11 @@ def parse_targets_csv(text: str, source: str, minutes: float, priority: float = 
     """Targets from CSV text; ``source`` names the file in errors (``source:line``)."""
     header: list[str] | None = None
     targets: list[Target] = []
-    for number, line in enumerate(text.splitlines(), start=1):
+    # Lines end at LF (or CRLF) only: any other line break inside a line is a control
+    # character the name check refuses, not a new line.
+    lines = text.split("\n")
+    for number, line in enumerate(lines, start=1):
+        line = line[:-1] if line.endswith("\r") else line
         if not line.strip() or line.lstrip().startswith("#"):
             continue
         where = f"{source}:{number}"
@@ -339,6 +341,8 @@ def parse_targets_toml(text: str, source: str, minutes: float, priority: float =
         raw = tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
         raise UserError(f"{source}: not valid TOML ({exc})") from None
+    except RecursionError:
+        raise UserError(f"{source}: not a target file (arrays or tables nested too deeply)") from None
     # tomllib keeps no line numbers: the n-th [[target]] header is the n-th table.
     header_lines = [i for i, line in enumerate(text.splitlines(), start=1)
                     if re.match(r"\s*\[\[\s*target\s*\]\]", line)]

@@ -15,7 +15,7 @@ from .galaxy import RotationModel, hi_velocity_envelope
 from .passages import Passage
 from .sensitivity import days_to_reach, radiometer_rms_k
 from .site import Receiver
-from .spectral import TuningAdvice, tuning_advice
+from .spectral import TuningAdvice, shared_centre_mhz, tuning_advice, tuning_at_centre
 
 
 @dataclass(frozen=True)
@@ -50,6 +50,43 @@ def line_setup(l_bins, bin_width_deg: float, b_abs_max_deg: float, lsr_corr_min_
     v_lo, v_hi = envelope_over_bins_kms(l_bins, bin_width_deg, b_abs_max_deg, model)
     advice = tuning_advice(v_lo, v_hi, lsr_corr_min_kms, lsr_corr_max_kms, receiver)
     return LineSetup(v_lo, v_hi, lsr_corr_min_kms, lsr_corr_max_kms, advice)
+
+
+def shared_setups(setups) -> list[LineSetup | None]:
+    """One receiver centre for each run of consecutive observations (e.g. the days of a plan).
+
+    ``setups``: ``LineSetup`` per observation in time order, ``None`` where nothing is
+    observed (such entries neither join nor end a run). A run keeps one centre
+    (``spectral.shared_centre_mhz``) as long as that centre serves every observation of the
+    run as well as its own advice: a line that fitted the usable band still fits, and a
+    band-centre spike that was clear of the line stays clear. The first observation that
+    cannot be served so starts a new run, so the receiver is retuned only when it must be.
+    Returns the setups with their advice moved to the run's centre.
+    """
+    setups = list(setups)
+    out: list[LineSetup | None] = [None] * len(setups)
+    run: list[int] = []
+    centre_mhz = None
+
+    def close():
+        for j in run:
+            out[j] = LineSetup(setups[j].v_lsr_min_kms, setups[j].v_lsr_max_kms,
+                               setups[j].lsr_corr_min_kms, setups[j].lsr_corr_max_kms,
+                               tuning_at_centre(setups[j].advice, centre_mhz))
+
+    for i, setup in enumerate(setups):  # one per day: tens to hundreds
+        if setup is None:
+            continue
+        trial = shared_centre_mhz([setups[j].advice for j in run] + [setup.advice])
+        if trial is None:
+            close()
+            run, centre_mhz = [i], shared_centre_mhz([setup.advice])
+        else:
+            run.append(i)
+            centre_mhz = trial
+    if run:
+        close()
+    return out
 
 
 def seconds_per_bin(passages: list[Passage]) -> dict[float, float]:

@@ -55,7 +55,8 @@ import numpy as np
 from dateutil.rrule import rrulestr  # via matplotlib's dependency on python-dateutil
 
 from .errors import UserError
-from .timebase import SECONDS_PER_DAY, UNIX_EPOCH_MJD
+from .inputs import check_plain, read_input_text
+from .timebase import mjd_to_datetime_utc, unix_to_mjd_utc
 
 __all__ = [
     "ALWAYS",
@@ -63,6 +64,7 @@ __all__ = [
     "RecurrenceWindow",
     "WeeklyWindow",
     "clip_to_windows",
+    "describe_window_texts",
     "inside",
     "never_occurs",
     "parse_windows",
@@ -101,10 +103,15 @@ class WeeklyWindow:
         return self.end_min <= self.start_min
 
     def describe(self) -> str:
-        """Human-readable form, e.g. ``Mon–Fri 19:00–23:30``."""
+        """For people, e.g. ``Mon–Fri 19:00–23:30`` or ``Sat 21:00–02:00 (next day)``."""
         suffix = " (next day)" if self.next_day_end else ""
-        return (f"{_describe_days(self.days)} {_clock(self.start_min)}–"
+        return (f"{_describe_days(self.days, ', ')} {_clock(self.start_min)}–"
                 f"{_clock(self.end_min)}{suffix}")
+
+    def normalised(self) -> str:
+        """Machine-readable form that parses back to the same window, e.g. ``Sat,Sun 08:30-12:00``."""
+        days = _describe_days(self.days, ",").replace("–", "-")
+        return f"{days} {_clock(self.start_min)}-{_clock(self.end_min)}"
 
 
 @dataclass(frozen=True)
@@ -123,7 +130,13 @@ class RecurrenceWindow:
     line: int
 
     def describe(self) -> str:
-        """Human-readable form: the normalised rule and its duration."""
+        """For people, in words as far as the rule allows, e.g. ``every Tuesday and Thursday
+        14:00 for 2 h 30 min, until Tue 31 Aug 2027 (the whole day)``; a rule with parts
+        that have no wording here (BYSETPOS, BYWEEKNO, ...) is shown as written."""
+        return _describe_rrule(self.rule, self.until, self.duration_min)
+
+    def normalised(self) -> str:
+        """Machine-readable form that parses back to the same window (upper-case rule)."""
         until = f";UNTIL={self.until}" if self.until else ""
         return f"RRULE:{self.rule}{until} for {_describe_duration(self.duration_min)}"
 
@@ -140,10 +153,15 @@ class Availability:
         return not self.rules
 
     def describe(self) -> list[str]:
-        """One human-readable line per window, in the order written."""
+        """One line for people per window, in the order written."""
         if self.is_always:
             return ["any time (no availability windows given)"]
         return [rule.describe() for rule in self.rules]
+
+    def normalised(self) -> list[str]:
+        """One machine-readable line per window (``parse_windows`` reads each back); empty
+        for ``ALWAYS``. Plans store this form, so their windows can be read again."""
+        return [rule.normalised() for rule in self.rules]
 
 
 ALWAYS = Availability(rules=(), source="any time")
@@ -162,11 +180,14 @@ def parse_windows(text: str, source: str = "--windows") -> Availability:
     """
     option = source.startswith("-")
     rules: list[WeeklyWindow | RecurrenceWindow] = []
-    for lineno, raw in enumerate(text.splitlines(), start=1):
-        body = raw.split("#", 1)[0].strip()
+    # Lines end at LF (or CRLF) only; any other line break in a window is a control
+    # character, refused: window texts are echoed into plans, briefs and calendars.
+    for lineno, raw in enumerate(text.split("\n"), start=1):
+        body = raw.removesuffix("\r").split("#", 1)[0].strip()
         if not body:
             continue
         where = source if option else f"{source}:{lineno}"
+        check_plain(body, where, "window text")
         for item in _split_items(body):
             rules.append(_parse_item(item, lineno, where))
     if not rules:
@@ -187,11 +208,12 @@ def read_windows(path_or_text: str) -> Availability:
         is_file = bool(candidate) and path.is_file()
     except (OSError, ValueError):  # over-long or NUL-containing text is not a path
         is_file = False
-    if is_file:
-        try:
-            content = path.read_text(encoding="utf-8")
-        except (OSError, UnicodeDecodeError) as exc:
-            raise UserError(f"--windows: cannot read '{candidate}': {exc}") from None
+    try:
+        is_other = bool(candidate) and not is_file and path.exists()  # a folder, device, FIFO
+    except (OSError, ValueError):
+        is_other = False
+    if is_file or is_other:  # UTF-8, a leading BOM allowed, at most 10 MB, regular files only
+        content = read_input_text(path, "windows file")
         return parse_windows(content, source=str(candidate))
     # Window text always has a space before its times; a lone dotted word is a path.
     if re.fullmatch(r"[\w./\\~-]+\.\w+", candidate) and ":" not in candidate:
@@ -392,7 +414,7 @@ def _describe_duration(minutes: int) -> str:
     return f"{hours}h" if hours else f"{rest}m"
 
 
-def _describe_days(days: tuple[int, ...]) -> str:
+def _describe_days(days: tuple[int, ...], sep: str = ",") -> str:
     """Runs of three or more consecutive days (wrapping past Sunday) become ranges."""
     if len(days) == 7:
         return "daily"
@@ -415,7 +437,136 @@ def _describe_days(days: tuple[int, ...]) -> str:
             labels.append(f"{_DAY_LABELS[run[0]]}–{_DAY_LABELS[run[-1]]}")
         else:
             labels.extend(_DAY_LABELS[d] for d in run)
-    return ",".join(labels)
+    return sep.join(labels)
+
+
+_DAY_WORDS = {"MO": "Monday", "TU": "Tuesday", "WE": "Wednesday", "TH": "Thursday",
+              "FR": "Friday", "SA": "Saturday", "SU": "Sunday"}
+_MONTH_WORDS = ("January", "February", "March", "April", "May", "June", "July", "August",
+                "September", "October", "November", "December")
+_ORDINALS = {1: "first", 2: "second", 3: "third", 4: "fourth", 5: "fifth", -1: "last",
+             -2: "second to last"}
+_FREQ_UNITS = {"DAILY": "day", "WEEKLY": "week", "MONTHLY": "month", "YEARLY": "year"}
+
+
+def _and(words: list[str]) -> str:
+    return words[0] if len(words) == 1 else ", ".join(words[:-1]) + " and " + words[-1]
+
+
+def _ordinal(n: int) -> str:
+    if n in _ORDINALS:
+        return _ORDINALS[n]
+    if n < 0:
+        return f"{_ordinal(-n)} to last"
+    return f"{n}th"
+
+
+def _duration_words(minutes: int) -> str:
+    hours, rest = divmod(minutes, 60)
+    return " ".join(part for part in (f"{hours} h" if hours else "", f"{rest} min" if rest else "")
+                    if part)
+
+
+def _until_words(until: str) -> str:
+    value, kind = _until_value(until)
+    if kind == "date":
+        return f"until {value:%a} {value.day} {value:%b %Y} (the whole day)"
+    zone = " UTC" if kind == "utc" else ""
+    return f"until {value:%a} {value.day} {value:%b %Y %H:%M}{zone}"
+
+
+def _describe_rrule(rule: str, until: str | None, duration_min: int) -> str:
+    """An RRULE window in words, or the rule as written when it has parts with no wording here.
+
+    DTSTART is the first local midnight of the period (module docstring), so a rule
+    without BYHOUR/BYMINUTE starts at 00:00 and one without a day part repeats on the
+    weekday or day of the month the period starts.
+    """
+    parts = dict(part.split("=", 1) for part in rule.split(";"))
+    tail = ""
+    freq = parts.pop("FREQ")
+    interval = int(parts.pop("INTERVAL", "1"))
+    count = parts.pop("COUNT", None)
+    unit = _FREQ_UNITS[freq]
+    every = f"every {unit}" if interval == 1 else (
+        f"every other {unit}" if interval == 2 else f"every {interval} {unit}s")
+    byday = parts.pop("BYDAY", None)
+    plain, nth = [], []
+    for token in (byday.split(",") if byday else []):
+        match = re.fullmatch(r"([+-]?\d*)([A-Z]{2})", token)
+        if match is None or match.group(2) not in _DAY_WORDS:
+            parts["BYDAY"] = byday  # not worded: shown as written
+            plain, nth = [], []
+            break
+        if match.group(1):
+            nth.append(f"{_ordinal(int(match.group(1)))} {_DAY_WORDS[match.group(2)]}")
+        else:
+            plain.append(_DAY_WORDS[match.group(2)])
+    months = parts.pop("BYMONTH", None)
+    month_words = ([_MONTH_WORDS[int(m) - 1] for m in months.split(",")]
+                   if months and all(m.isdigit() and 1 <= int(m) <= 12 for m in months.split(","))
+                   else None)
+    if months and month_words is None:
+        parts["BYMONTH"] = months
+    monthdays = parts.pop("BYMONTHDAY", None)
+    if monthdays and not re.fullmatch(r"-?\d+(,-?\d+)*", monthdays):
+        parts["BYMONTHDAY"], monthdays = monthdays, None
+
+    if plain and not nth and (freq in ("DAILY", "WEEKLY") or interval == 1):
+        lead = (f"every {_and(plain)}" if interval == 1
+                else f"{every} on {_and(plain)}")
+    elif nth or plain:
+        lead = f"the {_and(nth + plain)} of {every}" if nth else f"every {_and(plain)} of {every}"
+    elif monthdays:
+        days = _and([_ordinal(int(d)) if int(d) < 0 else str(int(d)) for d in monthdays.split(",")])
+        noun = "day" if "," not in monthdays else "days"
+        if freq == "YEARLY" and month_words:
+            lead = f"{every} on {days} {_and(month_words)}"
+            month_words = None
+        else:
+            lead = f"on {noun} {days} of {every}" if freq == "MONTHLY" else f"{every} on {noun} {days} of the month"
+    elif freq == "WEEKLY":
+        lead, tail = every, ", on the weekday the plan period starts"
+    elif freq == "MONTHLY":
+        lead, tail = every, ", on the day of the month the plan period starts"
+    elif freq == "YEARLY" and not month_words:
+        lead, tail = every, ", on the date the plan period starts"
+    else:
+        lead = every
+    if month_words:
+        lead += f" in {_and(month_words)}"
+
+    hours = parts.pop("BYHOUR", "0")
+    minutes = parts.pop("BYMINUTE", "0")
+    if re.fullmatch(r"\d+(,\d+)*", hours) and re.fullmatch(r"\d+(,\d+)*", minutes):
+        times = _and([f"{int(h):02d}:{int(m):02d}" for h in hours.split(",")
+                      for m in minutes.split(",")])
+    else:
+        parts.update({"BYHOUR": hours, "BYMINUTE": minutes})
+        times = ""
+    if parts:  # BYSETPOS, BYWEEKNO, ...: words for the rest would mislead
+        text = f"by the rule {rule} for {_duration_words(duration_min)}"
+    else:
+        text = f"{lead} {times} for {_duration_words(duration_min)}{tail}".replace("  ", " ")
+        if count:
+            text += f", {count} time{'s' if count != '1' else ''} from the start of the plan period"
+    if until:
+        text += f", {_until_words(until)}"
+    return text
+
+
+def describe_window_texts(texts) -> list[str]:
+    """Window lines as stored in a plan (``Availability.normalised`` or as written), in words
+    for people: each is parsed and described; a line that does not parse (a plan written by
+    another version) is shown as written, its spaces collapsed."""
+    out = []
+    for text in texts or ():
+        text = " ".join(str(text).split())
+        try:
+            out.extend(parse_windows(text, source="plan").describe())
+        except UserError:
+            out.append(text)
+    return out
 
 
 # ---------------------------------------------------------------- evaluation
@@ -457,9 +608,7 @@ def _as_zone(tz: tzinfo | str) -> tzinfo:
 
 def _local_wall(mjd_utc: float, tz: tzinfo) -> datetime:
     """Naive local wall time of an MJD (UTC), to the microsecond."""
-    moment = datetime(1970, 1, 1, tzinfo=timezone.utc) + timedelta(
-        days=float(mjd_utc) - UNIX_EPOCH_MJD)
-    return moment.astimezone(tz).replace(tzinfo=None)
+    return mjd_to_datetime_utc(mjd_utc, whole_seconds=False).astimezone(tz).replace(tzinfo=None)
 
 
 def _weekly_edges_s(rule: WeeklyWindow, first_day: date, last_day: date,
@@ -550,7 +699,7 @@ def window_intervals_mjd(avail: Availability, start_mjd: float, end_mjd: float,
             edges.extend(_rrule_edges_s(rule, anchor, stop, zone))
     edges_s = np.array(edges, dtype=np.int64).reshape(-1, 2)
     edges_s = edges_s[edges_s[:, 1] > edges_s[:, 0]]  # a window wholly inside a gap vanishes
-    merged_mjd = _merge(edges_s) / SECONDS_PER_DAY + UNIX_EPOCH_MJD
+    merged_mjd = unix_to_mjd_utc(_merge(edges_s)).reshape(-1, 2)
     return clip_to_windows(start_mjd, end_mjd, merged_mjd)
 
 

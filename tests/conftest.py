@@ -21,6 +21,21 @@ def school():
 
 
 @pytest.fixture
+def full_disk(monkeypatch):
+    """Every write to a file fails as on a full disk (the terminal's descriptors still work)."""
+    import errno
+    import os
+    real_write = os.write
+
+    def write(fd, data):
+        if fd > 2:
+            raise OSError(errno.ENOSPC, "No space left on device")
+        return real_write(fd, data)
+
+    monkeypatch.setattr(os, "write", write)
+
+
+@pytest.fixture
 def rng():
     return np.random.default_rng(20270301)
 

@@ -279,8 +279,9 @@ def test_survey_html_content():
     table = _visible_text(_day_table(page))
     assert "Saltbush Ridge Secondary School" in text
     assert "Tue 2 Mar 2027 to Wed 3 Mar 2027 (2 days)" in text
-    # Blocks rounded to the nearest minute: 20:01:30 -> 20:02, 20:21:30 -> 20:22.
-    assert "20:02–20:22" in table and "20:23–20:33" in table and "20:30–20:50" in table
+    # Blocks rounded outward (start down, end up): 20:01:30 -> 20:01, 20:21:30 -> 20:22;
+    # the reference 20:22:30-20:32:30 -> 20:22-20:33.
+    assert "20:01–20:22" in table and "20:22–20:33" in table and "20:30–20:50" in table
     assert "G300+0" in table and "OFF300+20" in table and "G330+0" in table
     # The two evenings are a day apart (> 2 h): two sessions; the first holds 2 slews,
     # 1.5 + 1.0 = 2.5 min, summarised in its heading rather than listed.
@@ -484,7 +485,7 @@ def test_cli_without_plots_module(tmp_path, monkeypatch, capsys):
     monkeypatch.setitem(sys.modules, "planner.plots", None)  # makes the import fail
     monkeypatch.delattr(planner, "plots", raising=False)  # even after an earlier import
     plan_path = _write_plan(tmp_path, saltbush_survey())
-    assert brief_cli.run(_args([str(plan_path)]), _Console()) == 0
+    assert brief_cli.run(_args([str(plan_path), "-o", "-"]), _Console()) == 0
     page = capsys.readouterr().out
     assert page.startswith("<!DOCTYPE html>") and "data:image" not in page
 
@@ -577,3 +578,80 @@ def test_real_browser_renders_page(tmp_path):
     # Nothing overflows the window sideways, and the table is not covered by anything.
     assert measure["right"] <= measure["vw"] + 0.5 and measure["scrollw"] <= measure["vw"], measure
     assert measure["inside"], measure
+
+
+# ------------------------------------------------------------------ drive angle, retunes, windows
+
+def test_survey_shows_the_drive_azimuth_and_explains_the_wrap_once():
+    survey = saltbush_survey()
+    # A cable wrap of -170..350 deg (the Saltbush Ridge site file): sky 350.0 deg is driven as
+    # 350 - 360 = -10.0 deg when the schedule comes from the west side of the wrap.
+    survey["settings"].update({"azimuth_min_deg": -170.0, "azimuth_max_deg": 350.0})
+    survey["blocks"][1].update({"az_start_deg": 350.0, "az_end_deg": 347.5,
+                                "drive_az_start_deg": -10.0, "drive_az_end_deg": -12.5})
+    survey["blocks"][3].update({"drive_az_start_deg": 150.0, "drive_az_end_deg": 152.5})
+    page = brief_html(survey)
+    table = _visible_text(_day_table(page))
+    assert "Drive az / El" in table
+    assert "drive az −10.0°→−12.5° (sky 350.0°→347.5°)" in table
+    # Drive and sky azimuth equal: no bracket.
+    assert "drive az 150.0°→152.5° el" in table
+    # The wrap is explained once, above the table, with the mount's range.
+    text = _visible_text(page)
+    assert text.count("cable wrap") == 1
+    assert "runs from −170° to 350°, more than one turn (the cable wrap)" in text
+    # A plan without drive angles (written by an older version) still shows the sky azimuth.
+    assert "sky az 150.0°→152.5°" in _visible_text(_day_table(brief_html(saltbush_survey())))
+
+
+def test_drift_marks_retune_days():
+    plan = hollowmere_plan()
+    flags = [True, False, True, None]  # 26 Mar set, 27 Mar kept, 28 Mar new setting, 29 Mar idle
+    for day, flag in zip(plan["days"], flags):
+        if day["tuning"] is not None:
+            day["tuning"]["retune"] = flag
+    page = brief_html(plan)
+    rows = re.findall(r"<tr[^>]*>.*?</tr>", _day_table(page), re.DOTALL)[1:]
+    assert "RETUNE to 1420.586 MHz" in _visible_text(rows[0])
+    assert "RETUNE" not in _visible_text(rows[1]) and "1420.586 MHz" in _visible_text(rows[1])
+    assert "RETUNE to 1420.612 MHz" in _visible_text(rows[2])
+    text = _visible_text(page)
+    assert ("2 settings, each kept until the next: 1420.586 MHz from Fri 26 Mar; "
+            "1420.612 MHz from Sun 28 Mar") in text
+
+
+def test_windows_are_shown_in_words():
+    plan = hollowmere_plan()
+    plan["settings"]["windows"] = ["Fri     18:30-23:30", "Sat 21:00-02:00",
+                                   "RRULE:FREQ=WEEKLY;BYDAY=FR;BYHOUR=18;BYMINUTE=30 for 3h"]
+    for page in (brief_html(plan), brief_markdown(plan)):
+        text = _visible_text(page) if page.startswith("<!") else page
+        assert ("Fri 18:30–23:30; Sat 21:00–02:00 (next day); every Friday 18:30 for 3 h."
+                in text), text[:3000]
+        assert "RRULE" not in text and "Fri     18" not in text
+
+
+def test_cli_writes_beside_the_plan_by_default(tmp_path, monkeypatch, capsys):
+    import planner
+    monkeypatch.setitem(sys.modules, "planner.plots", None)  # no charts: fast
+    monkeypatch.delattr(planner, "plots", raising=False)
+    plan_path = _write_plan(tmp_path, hollowmere_plan(), "march.json")
+    assert brief_cli.run(_args([str(plan_path)]), _Console()) == 0
+    assert capsys.readouterr().out == ""  # nothing dumped on the terminal
+    written = tmp_path / "march-brief.html"
+    assert written.read_text(encoding="utf-8").startswith("<!DOCTYPE html>")
+    # Kept without --force, replaced with it.
+    with pytest.raises(UserError, match=r"march-brief\.html: already exists"):
+        brief_cli.run(_args([str(plan_path)]), _Console())
+    assert brief_cli.run(_args([str(plan_path), "--force"]), _Console()) == 0
+    # --markdown picks the .md name; "-o -" prints instead of writing.
+    assert brief_cli.run(_args([str(plan_path), "--markdown"]), _Console()) == 0
+    assert (tmp_path / "march-brief.md").read_text(encoding="utf-8").startswith("# Operator brief")
+    assert brief_cli.run(_args([str(plan_path), "-o", "-", "--markdown"]), _Console()) == 0
+    assert capsys.readouterr().out.startswith("# Operator brief")
+    with pytest.raises(UserError, match="would replace the plan file"):
+        brief_cli.run(_args([str(plan_path), "-o", str(plan_path)]), _Console())
+    # The help says where the brief goes.
+    parser = argparse.ArgumentParser()
+    brief_cli.add_arguments(parser)
+    assert "plan.json->plan-brief.html" in re.sub(r"\s+", "", parser.format_help())

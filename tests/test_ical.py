@@ -601,8 +601,8 @@ def _triggers(raw: bytes) -> set[str]:
     cal = component_tree(raw)
     out = set()
     for event in children(cal, "VEVENT"):
-        (alarm,) = children(event, "VALARM")
-        out.add(one(alarm, "TRIGGER")[1])
+        for alarm in children(event, "VALARM"):  # survey blocks: only a session's first
+            out.add(one(alarm, "TRIGGER")[1])
     return out
 
 
@@ -621,6 +621,86 @@ def test_alarm_lead_default_setting_and_override():
         assert str(event["SUMMARY"]) in str(alarm["DESCRIPTION"])
     with pytest.raises(UserError, match="alarm_minutes"):
         ical.plan_calendar(drift_plan(), alarm_minutes=-5)
+
+
+def test_survey_reminds_once_per_session_and_tells_safety_once_a_day():
+    plan = survey_plan()
+    events = sorted(icalendar.Calendar.from_ical(export(plan)).events, key=lambda e: e.start)
+    names = [str(e["SUMMARY"]).split(" (")[0].split()[-1] for e in events]
+    assert names == ["G300+0", "OFF-300", "G310+0", "G320+0", "G330+0"]
+    # Two sessions: 15:40-17:33 UTC (slews 2 min apart at most), then 09:58 UTC the next
+    # evening, 16 h 25 min later (> 2 h): a reminder on G300+0 and on G330+0 only.
+    alarmed = [n for n, e in zip(names, events) if e.walk("VALARM")]
+    assert alarmed == ["G300+0", "G330+0"]
+    texts = [str(e["DESCRIPTION"]) for e in events]
+    # Every event is on local day Sun 4 Apr; the safety text comes with each session's first.
+    assert [("Safety:" in t) for t in texts] == [True, False, False, False, True]
+    assert texts[0].startswith("Session start: 4 blocks, 02:12 ACDT – 03:03 ACST")
+    assert texts[4].startswith("Session start: 1 block, 19:30–20:00 ACST")
+    # The safety text stays whole and the stow note (none here) cannot have displaced it.
+    for word in SAFETY_WORDS:
+        assert word in texts[0], word
+
+
+def test_survey_events_give_the_drive_azimuth():
+    plan = survey_plan()
+    # Cable wrap -170..350 deg: sky 190.4 deg driven as 190.4 - 360 = -169.6 deg; the track
+    # ends at sky 192.9 = drive -167.1. G310+0 is driven at its sky azimuth.
+    plan["settings"].update({"azimuth_min_deg": -170, "azimuth_max_deg": 350})
+    plan["blocks"][1].update({"drive_az_start_deg": -169.6, "drive_az_end_deg": -167.1})
+    plan["blocks"][5].update({"drive_az_start_deg": 180.0, "drive_az_end_deg": 182.5})
+    cal = icalendar.Calendar.from_ical(export(plan))
+    events = {str(e["SUMMARY"]).split(" (")[0]: e for e in cal.events}
+    g300 = events["Point dish at G300+0"]
+    assert str(g300["SUMMARY"]) == "Point dish at G300+0 (drive az -170°, el 49°)"
+    text = str(g300["DESCRIPTION"])
+    assert ("Set the drive to azimuth -169.6° (sky 190.4°), elevation 48.6°; the mount tracks to "
+            "drive azimuth -167.1° (sky 192.9°), elevation 50.8° by the end.") in text
+    g310 = str(events["Point dish at G310+0"]["DESCRIPTION"])
+    assert "Set the drive to azimuth 180.0°, elevation 45.0°" in g310 and "(sky" not in g310
+    # The wrap is explained in the calendar's own description, with the mount's range, and
+    # with each session's first event, not with every block.
+    described = str(cal["DESCRIPTION"])
+    assert "runs from -170° to 350°" in described and "cable wrap" in described
+    assert sum("cable wrap" in str(e["DESCRIPTION"]) for e in cal.events) == 2
+
+
+def test_event_times_follow_the_one_rounding_rule():
+    plan = drift_plan()
+    # A recording 22:10:40-23:05:10 UTC: shown (and put in the calendar) as 22:10-23:06, so
+    # following the calendar covers the whole passage; a re-park 19:00:20-19:15:50 is shown
+    # inward, 19:01-19:15, so acting at the times shown stays inside the window.
+    rec = plan["days"][0]["recordings"][0]
+    rec.update({"start_utc": "2027-03-27T22:10:40Z", "end_utc": "2027-03-27T23:05:10Z",
+                "start_local": "2027-03-27T22:10:40+00:00", "end_local": "2027-03-27T23:05:10+00:00"})
+    park = plan["days"][0]["park"]
+    park.update({"move_start_utc": "2027-03-27T19:00:20Z", "move_end_utc": "2027-03-27T19:15:50Z"})
+    events = list(icalendar.Calendar.from_ical(export(plan)).events)
+    recording = next(e for e in events if e.start.astimezone(UTC) == utc("2027-03-27T22:10:00Z"))
+    assert recording.end.astimezone(UTC) == utc("2027-03-27T23:06:00Z")
+    assert "22:10–23:06 GMT (56 min" in str(recording["DESCRIPTION"])
+    move = next(e for e in events if str(e["SUMMARY"]).startswith("Move dish to elevation 56"))
+    assert (move.start.astimezone(UTC), move.end.astimezone(UTC)) == (
+        utc("2027-03-27T19:01:00Z"), utc("2027-03-27T19:15:00Z"))
+    # The UID keeps the minute the recording started in, as before rounding.
+    assert ical.event_uid(f"{HOLLOWMERE_SITE['name']}|recording|2027-03-27T22:10Z|53..57") == \
+        str(recording["UID"])
+
+
+def test_drift_calendar_says_when_to_retune():
+    plan = drift_plan()
+    plan["days"][0]["tuning"]["retune"] = True
+    plan["days"][1]["tuning"]["retune"] = False
+    plan["days"][2]["tuning"]["retune"] = True
+    events = list(icalendar.Calendar.from_ical(export(plan)).events)
+
+    def text(start):
+        return str(next(e for e in events if e.start.astimezone(UTC) == utc(start))["DESCRIPTION"])
+
+    assert "Receiver: RETUNE today to centre frequency 1420.586 MHz" in text("2027-03-27T22:10:00Z")
+    kept = text("2027-03-28T00:40:00Z")
+    assert "Receiver: centre frequency 1420.586 MHz" in kept and "RETUNE" not in kept
+    assert "set the centre frequency to 1420.650 MHz" in text("2027-03-29T18:00:00Z")
 
 
 # ------------------------------------------------------------------ errors
@@ -759,3 +839,83 @@ def test_command_is_shaped_like_the_others():
     calendar_cli.add_arguments(parser)
     args = parser.parse_args(["p.json"])
     assert args.output is None and args.alarm is None and args.force is False
+
+
+# ------------------------------------------------------------------ hostile plans
+
+INJECTION = "END:VEVENT\r\nBEGIN:VEVENT\r\nUID:forged\r\nSUMMARY:pwned\r\nDTSTART:20270301T000000Z"
+
+
+@pytest.mark.parametrize("sep", ["\r", "\r\n", "\n", "\x0b", "\x0c", "\x85", "\u2028", "\u2029"])
+def test_control_characters_in_plan_texts_are_refused(tmp_path, sep):
+    """A hand-edited plan with a line break in a text field used to forge events (bare CR)
+    or die inside icalendar's assert (CRLF): it is one line naming the plan field."""
+    plan = drift_plan()
+    plan["site"]["name"] = "Evil" + INJECTION.replace("\r\n", sep)
+    path = _write(tmp_path, plan)
+    message = _error(ical.read_plan, path)
+    assert message.startswith(f"{path}: site.name contains a control character, U+{ord(sep[0]):04X}")
+    assert "site.name contains a control" in _error(ical.plan_calendar, plan)
+    survey = survey_plan()
+    survey["blocks"][1]["name"] = f"G120{sep}+0"
+    assert "blocks[1].name contains a control character" in _error(ical.check_plan, survey, "p")
+    warned = {**drift_plan(), "warnings": [f"SUN HAZARD{sep}BEGIN:VALARM"]}
+    assert "p: warnings[0] contains a control character" in _error(ical.check_plan, warned, "p")
+
+
+def test_refusal_does_not_rely_on_asserts(tmp_path):
+    """Under python -O (asserts removed) the forged plan is still refused and nothing written."""
+    import subprocess
+    import sys
+    for sep in ("\r", "\r\n"):
+        plan = drift_plan()
+        plan["site"]["name"] = "Evil" + INJECTION.replace("\r\n", sep)
+        path = _write(tmp_path, plan)
+        proc = subprocess.run([sys.executable, "-O", "-m", "planner.cli", "calendar", path,
+                               "-o", str(tmp_path / "out.ics")],
+                              capture_output=True, text=True, timeout=120)
+        assert proc.returncode == 2, proc.stderr
+        assert proc.stderr.count("\n") == 1 and "site.name contains a control character" in proc.stderr
+        assert not (tmp_path / "out.ics").exists()
+
+
+def _unescape(value: str) -> str:
+    """TEXT value per RFC 5545 section 3.3.11: \\\\ \\; \\, \\n (or \\N) are escapes."""
+    return re.sub(r"\\([\\;,nN])", lambda m: "\n" if m.group(1) in "nN" else m.group(1), value)
+
+
+def test_text_values_escape_commas_and_semicolons():
+    """NAME and X-WR-CALNAME were written with bare commas and semicolons, which RFC 5545
+    TEXT reserves (a list separator and a parameter delimiter); every TEXT value is escaped."""
+    plan = drift_plan()
+    name = "Hollowmere Radio Club; Astronomy, Section \\ North"
+    plan["site"]["name"] = name
+    raw = export(plan)
+    escaped = "Hollowmere Radio Club\\; Astronomy\\, Section \\\\ North"
+    cal = component_tree(raw)
+    for prop in ("NAME", "X-WR-CALNAME"):
+        _, value = one(cal, prop)
+        assert value == f"HI plan - {escaped}"  # the bytes as written
+        assert _unescape(value) == f"HI plan - {name}"  # an independent reader gets the name back
+    for event in children(cal, "VEVENT"):
+        _, location = one(event, "LOCATION")
+        assert location == escaped and _unescape(location) == name
+        for prop in ("SUMMARY", "DESCRIPTION"):
+            _, value = one(event, prop)
+            assert re.search(r"(?<!\\)[,;]", value) is None, (prop, value)
+    # icalendar reads the TEXT properties it knows back to the name; NAME and X-WR-CALNAME,
+    # which it reads as unknown, come back as written, and unescape to the name.
+    parsed = icalendar.Calendar.from_ical(raw)
+    assert {str(e["LOCATION"]) for e in parsed.walk("VEVENT")} == {name}
+    assert _unescape(parsed["X-WR-CALNAME"].to_ical().decode()) == f"HI plan - {name}"
+    assert _unescape(parsed["NAME"].to_ical().decode()) == f"HI plan - {name}"
+
+
+def test_plan_times_outside_the_supported_dates_or_with_a_false_second_60(tmp_path):
+    plan = drift_plan()
+    plan["days"][0]["recordings"][0]["start_utc"] = "9999-12-31T00:00:00Z"
+    assert "days[0].recordings[0].start_utc: 9999-12-31 is outside the dates hiplan supports" \
+        in _error(ical.check_plan, plan, "p")
+    plan = drift_plan()
+    plan["days"][0]["recordings"][0]["end_utc"] = "2027-03-27T23:59:60Z"
+    assert "has second 60, which exists only as a leap second" in _error(ical.check_plan, plan, "p")

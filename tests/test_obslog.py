@@ -1,4 +1,7 @@
 """Observation log: parsing, error reports, longitude bins and coverage sums."""
+import csv
+import io
+import os
 import re
 from datetime import datetime, timedelta, timezone
 from pathlib import Path
@@ -411,3 +414,51 @@ def test_coverage_blocks_match_one_pass(monkeypatch, rng):
     # 1e-9 minutes: the same numbers are summed, but block partial sums group them
     # differently from the running reference sum, so the last bits may differ.
     assert np.allclose(coverage_minutes(entries), expected, rtol=0, atol=1e-9)
+
+
+def test_several_logs_merge_and_count_a_recording_once(tmp_path):
+    """Two logs sharing one recording: the union, with the shared row counted once."""
+    head = "start_utc,end_utc,dec_deg,l_from_deg,l_to_deg,minutes,quality,note\n"
+    shared = "2027-01-05T21:00:00Z,2027-01-05T21:30:00Z,20,50,52,10,good,both\n"
+    a = tmp_path / "a.csv"
+    b = tmp_path / "b.csv"
+    a.write_text(head + shared + "2027-01-06T21:00:00Z,,20,60,60,5,good,only a\n")
+    b.write_text(head + "2027-01-05T21:00:00+00:00,,20,50.0,52,10,good,same recording\n"
+                 + "2027-01-07T21:00:00Z,,20,70,70,7,good,only b\n")
+    merged = obslog.read_logs([a, b])
+    assert len(merged) == 3
+    depth = obslog.coverage_minutes(merged)
+    # 50, 51, 52 from the shared recording once (10 min, not 20); 60 and 70 from each file.
+    assert depth[50] == depth[51] == depth[52] == 10.0 and depth[60] == 5.0 and depth[70] == 7.0
+    assert depth.sum() == 3 * 10.0 + 5.0 + 7.0
+
+
+def test_notes_starting_like_formulas_are_guarded_and_read_back():
+    """A note such as =HYPERLINK(..) would run as a formula in a spreadsheet: it is written
+    with a leading apostrophe and read back as it was; numbers are never touched."""
+    notes = ["=HYPERLINK(\"http://x\",\"click\")", "+1 dB", "-RFI", "@x", "'=already quoted",
+             "plain, with a comma", ""]
+    rows = [{"start_utc": f"2027-03-0{k + 1}T20:00:00Z", "dec_deg": -2.5, "l_from_deg": 10,
+             "l_to_deg": 12, "minutes": 5, "quality": "good", "note": note}
+            for k, note in enumerate(notes)]
+    text = format_log(rows)
+    cells = list(csv.reader(io.StringIO(text)))[2:]  # what a spreadsheet would see in each cell
+    assert [c[7] for c in cells[:5]] == ["'=HYPERLINK(\"http://x\",\"click\")", "'+1 dB", "'-RFI",
+                                         "'@x", "''=already quoted"]
+    assert all(c[2] == "-2.5" for c in cells)  # a negative number stays a number
+    assert [e.note for e in parse_log_text(text, "t")] == notes
+
+
+def test_leap_second_times_and_non_regular_files(tmp_path):
+    row = "2016-12-31T23:59:60.5Z,2017-01-01T00:10:00Z,20,30,40,10,good,leap"
+    (entry,) = parse_log_text(_log(row), "t.csv")
+    # 1e-10 d (9 us): float MJD rounding, far below the 0.5 s second 60 stands for.
+    assert abs(entry.start_mjd - Time("2016-12-31T23:59:60.5", scale="utc").mjd) < 1e-10
+    assert format_log([entry]).splitlines()[2].startswith("2016-12-31T23:59:60.500Z,")
+    with pytest.raises(UserError, match=r"^t\.csv:2: start_utc '2027-03-01T23:59:60Z' has second "
+                                        r"60, which exists only as a leap second"):
+        parse_log_text(_log(row.replace("2016-12-31T23:59:60.5Z", "2027-03-01T23:59:60Z")), "t.csv")
+    fifo = tmp_path / "log.csv"
+    os.mkfifo(fifo)
+    with pytest.raises(UserError, match=r"log\.csv:1: cannot read observation log: it is a pipe"):
+        read_log(fifo)

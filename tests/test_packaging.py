@@ -24,3 +24,14 @@ def test_wheel_contains_sites_and_default_site_loads(tmp_path):
                           check=True)
     folder, name = proc.stdout.strip().splitlines()
     assert folder.startswith(str(site_packages)) and name.startswith("Hollowmere")
+
+
+def test_astroplan_is_only_a_benchmark_dependency():
+    """hiplan never imports astroplan; only the survey benchmark does (its baseline)."""
+    import tomllib
+    meta = tomllib.loads((ROOT / "pyproject.toml").read_text())["project"]
+    assert not any(d.startswith("astroplan") for d in meta["dependencies"])
+    assert any(d.startswith("astroplan") for d in meta["optional-dependencies"]["bench"])
+    uses = [p for p in (ROOT / "planner").rglob("*.py") if "import astroplan" in p.read_text()
+            or "from astroplan" in p.read_text()]
+    assert uses == []

@@ -206,6 +206,29 @@ def test_coverage_atlas_builds_and_draws_the_plane(tmp_path, rng):
     assert abs(np.max(dec_deg) - 62.8717) < 0.01
 
 
+def test_coverage_atlas_two_culminations_zoom_and_partial_depth(tmp_path):
+    """Below-pole settings get their own map; the main map spans only declinations where
+    the plane (|dec| <= 62.87 + 3) can be met, so cells are readable; partial depth shades
+    the 'already covered' strip."""
+    starts = np.arange(0.0, 360.0, 1.0)
+    dec = np.arange(-24.0, 90.1, 2.5)
+    low = np.arange(52.0, 89.9, 2.5)
+    fraction = np.zeros(360)
+    fraction[40:45] = [0.2, 0.4, 0.6, 0.8, 1.0]
+    fig = plots.coverage_atlas(dec, starts, np.ones((dec.size, 360)), reachable_dec=(-24.6, 90.0),
+                               lower_dec_deg=low, lower_hours=np.ones((low.size, 360)),
+                               covered_fraction=fraction, b_max_deg=3.0)
+    _check_saves(fig, tmp_path, "atlas2")
+    main = next(ax for ax in fig.axes if ax.get_ylabel().startswith("Declination"))
+    lower = next(ax for ax in fig.axes if "below the pole" in ax.get_ylabel())
+    lo, hi = main.get_ylim()
+    assert lo == pytest.approx(-27.6) and hi == pytest.approx(62.8717 + 3 + 3, abs=0.01)
+    assert "Below the pole" in lower.get_title()
+    strip = next(ax for ax in fig.axes if "already covered" in [t.get_text() for t in ax.get_yticklabels()])
+    shaded = strip.collections[0].get_array()
+    assert shaded.count() == 5 and np.allclose(shaded.compressed(), fraction[40:45])
+
+
 def test_coverage_atlas_rejects_a_wrong_shape():
     with pytest.raises(ValueError, match="usable_hours"):
         plots.coverage_atlas([0.0, 10.0], [0.0, 1.0, 2.0], np.zeros((3, 2)))

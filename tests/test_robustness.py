@@ -1,7 +1,9 @@
 """Reliability: extreme sites, time zones, fuzzed input never crashing, inputs untouched."""
 import json
 import math
+import os
 import tomllib
+from pathlib import Path
 
 import pytest
 from hypothesis import HealthCheck, given, settings, strategies as st
@@ -89,7 +91,10 @@ def test_local_times_agree_across_dst_and_year_end(tmp_path, capsys, site_name, 
     events = {}
     for ev in Calendar.from_ical(ics.read_bytes()).walk("VEVENT"):
         events[ev.decoded("dtstart").astimezone(ev.decoded("dtstart").tzinfo)] = ev
-    starts = [datetime.fromisoformat(r["start_local"]) for d in doc["days"] for r in d["recordings"]]
+    # Every output rounds a recording outward to the minute (planfile.shown_span): the start
+    # is floored.
+    starts = [datetime.fromisoformat(r["start_local"]).replace(second=0, microsecond=0)
+              for d in doc["days"] for r in d["recordings"]]
     assert starts
     offsets = {s.utcoffset() for s in starts}
     for s in starts:
@@ -162,3 +167,126 @@ def test_inputs_are_never_modified(tmp_path, capsys):
     capsys.readouterr()
     for path, before in files.items():
         assert (path.read_bytes(), path.stat().st_mtime_ns) == before
+
+
+@pytest.mark.parametrize("argv,message", [
+    (["park", "--step", "0.001", "--start", "2027-03-01", "--days", "3"],
+     "--step: 0.001° gives about 153,006 declinations, more than the 3,000"),
+    (["month", "--step", "0.01", "--start", "2027-03-01", "--days", "5"], "--step: 0.01°"),
+    (["lsr", "--dec", "20", "--step", "0.001", "--start", "2027-03-01", "--days", "2"],
+     "--step/--days: 2,880,001 samples, more than the 1,000,000"),
+])
+def test_work_is_estimated_and_refused_before_computing(capsys, argv, message):
+    """Runaway steps are refused at once with one line (they used to grow past 15 GB)."""
+    import time
+    started = time.perf_counter()
+    assert main(argv) == 2
+    err = capsys.readouterr().err
+    assert message in err and err.count("\n") == 1
+    assert time.perf_counter() - started < 5.0  # refused before any sweep starts
+
+
+def test_sweep_work_limits_name_the_options(club):
+    from planner.coverage import MAX_OCCURRENCES, check_work
+    check_work(70, 365, 360)  # the default scale passes
+    with pytest.raises(UserError, match=r"--step/--days: 3000 declinations over 730 days"):
+        check_work(3000, 730, 360)
+    with pytest.raises(UserError, match="passage-bins"):
+        check_work(1000, 92, 360, per_occurrence=True)
+    assert MAX_OCCURRENCES >= 70 * 4 * 732  # a two-year park at the default step fits
+
+
+# ------------------------------------------------------------------ hostile input: one line
+
+PERIOD_ARGS = ["--start", "2027-03-01", "--days", "2"]
+
+
+def _one_line_error(capsys, argv) -> str:
+    import time
+    started = time.perf_counter()
+    code = main(argv)
+    out, err = capsys.readouterr()
+    assert code == 2, (argv, err)
+    assert err.count("\n") == 1 and err.startswith("hiplan: error: ") and "Traceback" not in err
+    assert out == ""
+    # Refused at once, before any sweep (it used to hang on /dev/zero); generous for a busy machine.
+    assert time.perf_counter() - started < 20.0
+    return err
+
+
+@pytest.mark.parametrize("argv,message", [
+    (["crossings", "--start", "0001-01-01", "--days", "1"], "--start: 0001-01-01 is outside the dates"),
+    (["crossings", "--start", "9999-12-31", "--days", "1"], "--start: 9999-12-31 is outside the dates"),
+    (["park", "--start", "9999-12-31"], "--start: 9999-12-31 is outside"),
+    (["month", "--start", "0001-01-01"], "--start: 0001-01-01 is outside"),
+    (["month", "--month", "9999-12"], "--month: 9999-12-01 is outside"),
+    (["tune", "--dec", "20", "--start", "9999-12-31"], "--start: 9999-12-31 is outside"),
+    (["lsr", "--dec", "20", "--start", "0001-01-01"], "--start: 0001-01-01 is outside"),
+    (["survey", "--site", "saltbush-ridge", "--grid", "l=0,b=0", "--start", "9999-12-31"],
+     "--start: 9999-12-31 is outside"),
+    (["lsr", "--dec", "20", "--time", "9999-12-31T23:59:59Z"],
+     "--time: '9999-12-31T23:59:59Z' is outside the dates hiplan supports (1901-01-01 to 2099-12-31"),
+    (["crossings", "--start", "2099-12-30", "--days", "7"],
+     "--start/--days: the period would end on 2100-01-05, after the dates hiplan supports"),
+    (["lsr", "--dec", "20", "--time", "2027-06-30T23:59:60Z"], "has second 60"),
+])
+def test_dates_outside_the_supported_range(capsys, argv, message):
+    assert message in _one_line_error(capsys, argv)
+
+
+@pytest.mark.parametrize("argv,message", [
+    (["crossings", "--site", "/dev/zero", *PERIOD_ARGS], "/dev/zero: cannot read site file: it is a device"),
+    (["park", "--log", "/dev/zero", *PERIOD_ARGS], "/dev/zero:1: cannot read observation log: it is a device"),
+    (["month", "--windows", "/dev/zero", *PERIOD_ARGS], "/dev/zero: cannot read windows file: it is a device"),
+    (["calendar", "/dev/zero", "-o", "{tmp}/x.ics"], "/dev/zero: cannot read plan file: it is a device"),
+    (["brief", "/dev/zero", "-o", "{tmp}/x.html"], "/dev/zero: cannot read plan file"),
+    (["plan-log", "/dev/zero"], "/dev/zero: cannot read plan file"),
+    (["tune", "--plan", "/dev/zero"], "/dev/zero: cannot read plan file"),
+    (["survey", "--site", "saltbush-ridge", "--targets", "{tmp}/pipe.csv", *PERIOD_ARGS],
+     "pipe.csv: cannot read target file: it is a pipe (FIFO)"),
+    (["crossings", "--site", "{tmp}/pipe.toml", *PERIOD_ARGS], "cannot read site file: it is a pipe"),
+    (["calendar", "{tmp}/deep.json", "-o", "{tmp}/x.ics"], "deep.json: not a plan file (its JSON is nested too deeply)"),
+    (["brief", "{tmp}/deep.json", "-o", "{tmp}/x.html"], "deep.json: not a plan file (its JSON is nested"),
+    (["plan-log", "{tmp}/deep.json"], "deep.json: not a plan file (its JSON is nested"),
+    (["tune", "--plan", "{tmp}/deep.json"], "deep.json: not a plan file (its JSON is nested"),
+])
+def test_devices_pipes_and_deep_files_are_one_line_errors(tmp_path, capsys, argv, message):
+    """Devices and FIFOs are refused unread (reading /dev/zero used to hang for ever), and a
+    plan nested 100,000 deep is refused instead of overflowing the recursion limit."""
+    os.mkfifo(tmp_path / "pipe.csv")
+    os.mkfifo(tmp_path / "pipe.toml")
+    (tmp_path / "deep.json").write_text("[" * 100_000 + "]" * 100_000)
+    argv = [a.replace("{tmp}", str(tmp_path)) for a in argv]
+    assert message.replace("{tmp}", str(tmp_path)) in _one_line_error(capsys, argv)
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["deep.json", "pipe.csv", "pipe.toml"]
+
+
+def test_write_failures_are_one_line(tmp_path, capsys, request):
+    if Path("/proc").is_dir():  # a folder nobody can create files in, even root
+        err = _one_line_error(capsys, ["crossings", *PERIOD_ARGS, "-o", "/proc/x.json"])
+        assert "/proc/x.json: cannot write the file" in err
+    request.getfixturevalue("full_disk")
+    out = tmp_path / "pass.csv"
+    err = _one_line_error(capsys, ["crossings", *PERIOD_ARGS, "--format", "csv", "-o", str(out)])
+    assert f"{out}: cannot write the file: the disk is full" in err
+    assert list(tmp_path.iterdir()) == []  # no partial file, no temporary file
+
+
+def test_no_raw_warnings_for_dates_outside_the_tables():
+    """Before the Earth-orientation table (1973) and past it (2027), and at the very end of the
+    supported dates at a far-west site: nothing but hiplan's own lines reaches stderr."""
+    import subprocess
+    import sys
+    import tempfile
+    with tempfile.TemporaryDirectory() as folder:
+        west = _site_file(Path(folder), "west", 0.0, -178.0, "Etc/GMT+12")
+        for argv in (["crossings", "--start", "2090-01-01", "--days", "1"],
+                     ["crossings", "--start", "1960-01-01", "--days", "1"],
+                     ["lsr", "--site", west, "--dec", "20", "--time", "2099-12-31T23:59:59Z"],
+                     ["-v", "crossings", "--site", west, "--dec", "20", "--start", "2099-12-29",
+                      "--days", "3"]):
+            proc = subprocess.run([sys.executable, "-m", "planner.cli", *argv], capture_output=True,
+                                  text=True, timeout=300, env={**os.environ, "PYTHONWARNINGS": "default"})
+            assert proc.returncode == 0, proc.stderr
+            assert "Warning" not in proc.stderr, proc.stderr
+            assert all(line.startswith("hiplan: note: ") for line in proc.stderr.splitlines())

@@ -157,3 +157,46 @@ def test_feed_safety_rule_default_and_echo(tmp_path):
     raw = _raw("hollowmere")
     raw["rules"]["sun_hazard_deg"] = 15
     assert site_from_dict(raw, "x.toml").rules.sun_hazard_deg == 15.0
+
+
+# TOML escapes for every character the calendar-injection rule names, and ESC.
+_ESCAPES = {"\r": r"\r", "\n": r"\n", "\x0b": r"\u000B", "\x0c": r"\f", "\x85": r"\u0085",
+            "\u2028": r"\u2028", "\u2029": r"\u2029", "\x1b": r"\u001B"}
+
+
+def _named(tmp_path, escaped_name: str, prefix: bytes = b"") -> str:
+    text = (bundled_sites_dir() / "hollowmere.toml").read_text()
+    lines = [f'name = "{escaped_name}"' if line.startswith("name = ") else line
+             for line in text.splitlines()]
+    path = tmp_path / "club.toml"
+    path.write_bytes(prefix + "\n".join(lines).encode())
+    return str(path)
+
+
+@pytest.mark.parametrize("ch", sorted(_ESCAPES))
+def test_control_characters_in_the_name_are_refused(tmp_path, ch):
+    """A CR in a site name used to forge events in calendars; every line-breaking or control
+    character is refused, naming the file and the field."""
+    path = _named(tmp_path, f"Evil{_ESCAPES[ch]}END:VEVENT")
+    with pytest.raises(UserError, match=rf"^{path}: \[site\] name contains a control character, "
+                                        rf"U\+{ord(ch):04X}") as info:
+        read_site_file(path)
+    assert "\n" not in str(info.value)
+    raw = _raw()
+    raw["site"]["name"] = f"Club{ch}"
+    with pytest.raises(UserError, match=r"^x\.toml: \[site\] name contains a control"):
+        site_from_dict(raw, "x.toml")
+
+
+def test_tab_in_the_name_and_a_bom_are_accepted(tmp_path):
+    site = read_site_file(_named(tmp_path, r"Hollowmere\tClub", prefix=b"\xef\xbb\xbf"))
+    assert site.name == "Hollowmere\tClub"
+
+
+def test_devices_pipes_and_deep_nesting_are_one_line_errors(tmp_path):
+    with pytest.raises(UserError, match=r"^/dev/zero: cannot read site file: it is a device"):
+        load_site("/dev/zero")
+    deep = tmp_path / "deep.toml"
+    deep.write_text("x = " + "[" * 100_000 + "]" * 100_000 + "\n")
+    with pytest.raises(UserError, match=r"deep\.toml: not a site file \(arrays or tables nested"):
+        read_site_file(deep)

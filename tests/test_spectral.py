@@ -13,8 +13,10 @@ from planner.spectral import (
     channel_velocity_width_kms,
     radio_frequency_mhz,
     radio_velocity_kms,
+    shared_centre_mhz,
     topocentric_frequency_mhz,
     tuning_advice,
+    tuning_at_centre,
 )
 
 # HI rest frequency, Hellwig et al. 1970, IEEE Trans. Instrum. Meas. IM-19, 200.
@@ -221,6 +223,64 @@ def test_spike_and_fit_properties(v_lo, v_width, corr_lo, corr_width, bandwidth_
     v_spike_kms = C_KMS * (F0_MHZ - a.centre_mhz) / F0_MHZ
     assert a.spike_v_lsr_min_kms == pytest.approx(v_spike_kms + a.lsr_corr_min_kms, abs=1e-6)
     assert a.channel_width_khz == pytest.approx(bandwidth_mhz * 1e3 / channels, rel=1e-12)
+
+
+def test_shared_centre_hand_worked():
+    # a: v -100..+50, corr -10..+10 -> line f0 - 60 k .. f0 + 110 k = 1420.12147395 .. 1420.92692768
+    #    (k = 0.004737963594 MHz per km/s); alone it is tuned to 1420.019 (test above), spike clear.
+    # b: corr up to +14 -> line up to f0 + 114 k = 1420.94587962 MHz; span 174 k + 0.05 < 0.96: clear.
+    # Shared: the centre must keep both lines inside +-0.96 MHz and the spike 0.05 MHz below both:
+    # [1420.94587962 - 0.96, 1420.12147395 - 0.05] = [1419.98587962, 1420.07147395];
+    # midpoint 1420.02867678, on the 1 kHz grid 1420.029 MHz.
+    a = tuning_advice(-100.0, 50.0, -10.0, 10.0, HOLLOWMERE_RX)
+    b = tuning_advice(-100.0, 50.0, -10.0, 14.0, HOLLOWMERE_RX)
+    assert shared_centre_mhz([a]) == pytest.approx(a.centre_mhz, abs=FLOAT_MHZ)
+    assert shared_centre_mhz([a, b]) == pytest.approx(1420.029, abs=FLOAT_MHZ)
+    # c: corr +60..+80 -> v_topo -180..-10 -> line f0 + 10 k .. f0 + 180 k = 1420.4531 .. 1421.2586:
+    # the band must start below 1421.2586 - 0.96 = 1420.2986 but the spike must stay under
+    # 1420.1215 - 0.05 for a: no common centre.
+    c = tuning_advice(-100.0, 50.0, 60.0, 80.0, HOLLOWMERE_RX)
+    assert shared_centre_mhz([a, c]) is None
+    # Lines that do not fit even alone add no condition: a stays served.
+    wide = tuning_advice(-300.0, 300.0, -20.0, 20.0, HOLLOWMERE_RX)
+    assert not wide.fits and shared_centre_mhz([a, wide]) == pytest.approx(a.centre_mhz, abs=FLOAT_MHZ)
+    with pytest.raises(ValueError):
+        shared_centre_mhz([])
+
+
+def test_tuning_at_centre_hand_worked():
+    a = tuning_advice(-100.0, 50.0, -10.0, 10.0, HOLLOWMERE_RX)
+    shared = tuning_at_centre(a, 1420.029)
+    # Band 1420.029 +- 0.96 holds 1420.1215 .. 1420.9269; spike 0.0925 MHz below the line.
+    assert shared.fits and shared.spike_clear and shared.centre_mhz == 1420.029
+    assert shared.margin_mhz == pytest.approx(a.margin_mhz, abs=FLOAT_MHZ)  # spare bandwidth kept
+    # Spike at v_topo = (f0 - 1420.029) / k = 0.376751768 / 0.004737963594 = 79.518 km/s.
+    assert shared.spike_v_lsr_min_kms == pytest.approx(79.518 - 10.0, abs=1e-3)
+    # Centred on the line: still inside the band, the spike inside the line.
+    inside = tuning_at_centre(a, 1420.5)
+    assert inside.fits and not inside.spike_clear
+    # 1421.1 - 0.96 = 1420.14 > 1420.12147395: the line's low end sticks out by 0.01852605 MHz.
+    out = tuning_at_centre(a, 1421.1)
+    assert not out.fits and out.margin_mhz == pytest.approx(-0.01852605, abs=1e-7)
+    assert out.notes[0] == "Tune the receiver centre to 1421.100 MHz."
+
+
+@settings(max_examples=200, deadline=None)
+@given(v_lo=st.floats(-400.0, 400.0), v_width=st.floats(0.0, 600.0),
+       corr_lo=st.floats(-40.0, 40.0), corr_width=st.floats(0.0, 60.0),
+       bandwidth_mhz=st.floats(0.25, 10.0))
+def test_one_advice_shares_its_own_centre(v_lo, v_width, corr_lo, corr_width, bandwidth_mhz):
+    rx = Receiver(bandwidth_mhz=bandwidth_mhz, channels=1024, tsys_k=100.0)
+    a = tuning_advice(v_lo, v_lo + v_width, corr_lo, corr_lo + corr_width, rx)
+    assert shared_centre_mhz([a]) == a.centre_mhz
+    same = tuning_at_centre(a, a.centre_mhz)
+    assert (same.fits, same.spike_clear) == (a.fits, a.spike_clear)
+    if a.fits:
+        assert same.margin_mhz == pytest.approx(a.margin_mhz, abs=FLOAT_MHZ)
+    else:
+        # The worse of the shortfall and the overhang past one edge: the 1 kHz rounding of a
+        # centred line can push one end out by up to 0.5 kHz more than half the shortfall.
+        assert same.margin_mhz <= a.margin_mhz + FLOAT_MHZ
 
 
 @pytest.mark.parametrize(

@@ -297,7 +297,8 @@ def test_cli_json_document(capsys):
                 "diameter_m", "beamwidth_deg", "elevation_min_deg", "elevation_max_deg",
                 "sun_min_sep_deg", "b_max_deg"):
         assert key in doc["site"]
-    assert set(doc["period"]) == {"start_utc", "end_utc", "start_local", "end_local", "days"}
+    assert set(doc["period"]) == {"start_utc", "end_utc", "start_local", "end_local", "days",
+                                  "first_day_local", "last_day_local"}
     for key in ("night_only", "windows", "sun_min_sep_deg", "moon_min_sep_deg", "alarm_minutes",
                 "lsr_definition"):
         assert key in doc["settings"]

@@ -1,4 +1,5 @@
 """Target grids, target files and reference positions."""
+import os
 import numpy as np
 import pytest
 from astropy.coordinates import SkyCoord
@@ -183,3 +184,39 @@ def test_icrs_and_galactic_targets_agree():
     i = icrs_target("x", g.ra_deg, g.dec_deg, 5)
     assert i.l_deg == pytest.approx(45.0, abs=1e-9) and i.b_deg == pytest.approx(10.0, abs=1e-9)
     assert np.isfinite([g.ra_deg, g.dec_deg]).all()
+
+
+@pytest.mark.parametrize("ch", ["\r", "\x0b", "\x0c", "\x85", "\u2028", "\u2029", "\x1b", "\t"])
+def test_control_characters_in_names_are_refused(ch):
+    """Target names go into calendars and CSV files: a line break or any other control
+    character (TAB too: a name has no room for one) is refused at its file and line."""
+    csv_text = CSV.replace("Carina,", f'"Car{ch}ina",')
+    with pytest.raises(UserError, match=rf"^t\.csv:3: name contains a control character, "
+                                        rf"U\+{ord(ch):04X}"):
+        parse_targets_csv(csv_text, "t.csv", 10)
+    toml_text = TOML.replace('name = "A"', f'name = "A\\u{ord(ch):04X}B"')
+    with pytest.raises(UserError, match=rf"^t\.toml:5: name contains a control character, "
+                                        rf"U\+{ord(ch):04X}"):
+        parse_targets_toml(toml_text, "t.toml", 10)
+
+
+def test_csv_lines_end_only_at_line_feeds():
+    # CRLF files read as before; a bare CR inside a line is not a line break.
+    assert len(parse_targets_csv(CSV.replace("\n", "\r\n"), "t.csv", 10)) == 2
+    with pytest.raises(UserError, match=r"^t\.csv:3: "):
+        parse_targets_csv(CSV.replace("Carina,", "Car\rina,"), "t.csv", 10)
+
+
+def test_target_files_with_a_bom_and_devices(tmp_path):
+    for name, text in (("list.csv", CSV), ("list.toml", TOML)):
+        path = tmp_path / name
+        path.write_bytes(b"\xef\xbb\xbf" + text.encode())
+        assert len(read_targets(path, 10)) == 2
+    deep = tmp_path / "deep.toml"
+    deep.write_text("x = " + "[" * 100_000 + "]" * 100_000 + "\n")
+    with pytest.raises(UserError, match=r"deep\.toml: not a target file \(arrays or tables"):
+        read_targets(deep, 10)
+    fifo = tmp_path / "pipe.csv"
+    os.mkfifo(fifo)
+    with pytest.raises(UserError, match=r"pipe\.csv: cannot read target file: it is a pipe"):
+        read_targets(fifo, 10)

@@ -10,6 +10,7 @@ Sun 3 Oct at 02:00 ACST (= 16:30 UTC on 2 Oct; clocks go on to 03:00). The chang
 rules (last Sundays of March/October at 01:00 UTC; first Sundays of April/October)
 are from memory; the dates are those given in the task and checked to be Sundays below.
 """
+import os
 import time
 from datetime import date, datetime, timezone
 from pathlib import Path
@@ -25,6 +26,7 @@ from planner.windows import (
     RecurrenceWindow,
     WeeklyWindow,
     clip_to_windows,
+    describe_window_texts,
     inside,
     never_occurs,
     parse_windows,
@@ -174,17 +176,62 @@ def test_describe():
                           " RRULE:FREQ=WEEKLY;BYDAY=TU;UNTIL=20270831 for 150m")
     assert avail.describe() == [
         "Fri–Mon 08:00–12:00",
-        "Sat,Sun 09:00–10:00",
-        "Mon,Wed–Fri 19:00–23:30",
+        "Sat, Sun 09:00–10:00",
+        "Mon, Wed–Fri 19:00–23:30",
         "daily 00:00–24:00",
         "Sat 20:00–02:00 (next day)",
-        "RRULE:FREQ=WEEKLY;BYDAY=TU;UNTIL=20270831 for 2h30m",
+        # No BYHOUR: occurrences start at DTSTART's 00:00; a bare-date UNTIL includes the day.
+        "every Tuesday 00:00 for 2 h 30 min, until Tue 31 Aug 2027 (the whole day)",
     ]
     assert ALWAYS.describe() == ["any time (no availability windows given)"]
     # The description of a same-day window parses back to the same days and times.
     again = parse_windows("; ".join(avail.describe()[:4]))
     assert [(r.days, r.start_min, r.end_min) for r in again.rules] == \
         [(r.days, r.start_min, r.end_min) for r in avail.rules[:4]]
+    # The normalised form is machine-readable: every window parses back to itself.
+    assert avail.normalised() == [
+        "Fri-Mon 08:00-12:00", "Sat,Sun 09:00-10:00", "Mon,Wed-Fri 19:00-23:30",
+        "daily 00:00-24:00", "Sat 20:00-02:00", "RRULE:FREQ=WEEKLY;BYDAY=TU;UNTIL=20270831 for 2h30m"]
+    assert parse_windows("\n".join(avail.normalised())).normalised() == avail.normalised()
+    assert ALWAYS.normalised() == []
+
+
+@pytest.mark.parametrize("rule, words", [
+    # Hand-worded from RFC 5545 section 3.3.10 semantics.
+    ("RRULE:FREQ=WEEKLY;BYDAY=FR;BYHOUR=18;BYMINUTE=30 for 3h", "every Friday 18:30 for 3 h"),
+    ("RRULE:FREQ=WEEKLY;BYDAY=TU,TH;BYHOUR=14;BYMINUTE=0;UNTIL=20270831 for 2h30m",
+     "every Tuesday and Thursday 14:00 for 2 h 30 min, until Tue 31 Aug 2027 (the whole day)"),
+    ("RRULE:FREQ=WEEKLY;INTERVAL=2;BYDAY=MO,WE,FR;BYHOUR=19 for 90m",
+     "every other week on Monday, Wednesday and Friday 19:00 for 1 h 30 min"),
+    ("RRULE:FREQ=DAILY;INTERVAL=3;BYHOUR=21;COUNT=4 for 45m",
+     "every 3 days 21:00 for 45 min, 4 times from the start of the plan period"),
+    ("RRULE:FREQ=MONTHLY;BYDAY=1MO;BYHOUR=20 for 2h", "the first Monday of every month 20:00 for 2 h"),
+    ("RRULE:FREQ=MONTHLY;BYDAY=-1FR;BYHOUR=20 for 2h", "the last Friday of every month 20:00 for 2 h"),
+    ("RRULE:FREQ=MONTHLY;BYMONTHDAY=15;BYHOUR=19 for 1h", "on day 15 of every month 19:00 for 1 h"),
+    ("RRULE:FREQ=YEARLY;BYMONTH=3;BYMONTHDAY=21;BYHOUR=19 for 2h",
+     "every year on 21 March 19:00 for 2 h"),
+    ("RRULE:FREQ=DAILY;BYHOUR=21;UNTIL=20270401T200000Z for 1h",
+     "every day 21:00 for 1 h, until Thu 1 Apr 2027 20:00 UTC"),
+    ("RRULE:FREQ=WEEKLY;BYHOUR=20 for 1h",
+     "every week 20:00 for 1 h, on the weekday the plan period starts"),
+    # A part with no wording here: the whole rule is shown rather than half-translated.
+    ("RRULE:FREQ=MONTHLY;BYDAY=MO,TU;BYSETPOS=-1;BYHOUR=20 for 1h",
+     "by the rule FREQ=MONTHLY;BYDAY=MO,TU;BYSETPOS=-1;BYHOUR=20 for 1 h"),
+])
+def test_rrule_in_words(rule, words):
+    (window,) = parse_windows(rule).rules
+    assert window.describe() == words
+    assert parse_windows(window.normalised()).rules[0].rule == window.rule
+
+
+def test_describe_window_texts_for_plans():
+    # Stored plan lines (raw, normalised or from another version) come out in words.
+    assert describe_window_texts(["Fri     18:30-23:30", "Sat 21:00-02:00",
+                                  "RRULE:FREQ=WEEKLY;BYDAY=TU;BYHOUR=20 for 3h",
+                                  "Sat 20:00–02:00 (next day)"]) == [
+        "Fri 18:30–23:30", "Sat 21:00–02:00 (next day)", "every Tuesday 20:00 for 3 h",
+        "Sat 20:00–02:00 (next day)"]  # the last one does not parse: shown as written
+    assert describe_window_texts([]) == []
 
 
 def test_read_windows_file_text_and_missing_file(tmp_path):
@@ -504,3 +551,51 @@ def test_a_year_of_windows_is_fast():
     elapsed = time.perf_counter() - t0
     assert got.shape[0] > 300
     assert elapsed < 1.0  # measured ~0.01 s; 1 s allows a slow CI machine
+
+
+# ---------------------------------------------------------------- hostile input
+
+
+@pytest.mark.parametrize("ch", ["\r", "\x0b", "\x0c", "\x85", "\u2028", "\u2029", "\x1b", "\x00"])
+def test_control_characters_in_windows_are_refused(tmp_path, ch):
+    """Window texts are echoed into plans, briefs and calendars: a control character is
+    refused, not taken as a line break, naming the option or the file and line."""
+    with pytest.raises(UserError, match=rf"^--windows: window text contains a control "
+                                        rf"character, U\+{ord(ch):04X}"):
+        parse_windows(f"Mon 19:00-20:00{ch}SUMMARY:forged")
+    path = tmp_path / "rota.txt"
+    path.write_bytes(f"# rota\nTue 19:00-20:00\nMon 19:00-20:00{ch}X\n".encode())
+    with pytest.raises(UserError, match=rf"^{path}:3: window text contains a control character"):
+        read_windows(str(path))
+
+
+def test_tabs_crlf_and_a_bom_are_fine(tmp_path):
+    assert len(parse_windows("Mon\t19:00-20:00").rules) == 1
+    path = tmp_path / "rota.txt"
+    path.write_bytes(b"\xef\xbb\xbfMon 19:00-20:00\r\nTue 19:00-20:00\r\n")
+    avail = read_windows(str(path))
+    assert [r.text for r in avail.rules] == ["Mon 19:00-20:00", "Tue 19:00-20:00"]
+
+
+def test_devices_and_pipes_are_refused_unread(tmp_path):
+    with pytest.raises(UserError, match=r"^/dev/zero: cannot read windows file: it is a device"):
+        read_windows("/dev/zero")
+    fifo = tmp_path / "rota.txt"
+    os.mkfifo(fifo)
+    with pytest.raises(UserError, match=r"rota\.txt: cannot read windows file: it is a pipe"):
+        read_windows(str(fifo))
+
+
+def test_window_edges_on_a_leap_second_day():
+    """2016-12-31 ends with a leap second (86,401 s): window edges on that day are placed
+    as astropy's UTC scale places them, and a window across the leap second lasts 1 s longer
+    than its wall-clock span."""
+    from astropy.time import Time
+    start = Time("2016-12-31T00:00:00", scale="utc").mjd
+    got = window_intervals_mjd(parse_windows("Sat 12:00-13:00; Sat 23:30-24:00"), start,
+                               start + 1.0, UTC)  # an MJD day is one day however long
+    want = Time(["2016-12-31T12:00:00", "2016-12-31T13:00:00", "2016-12-31T23:30:00",
+                 "2017-01-01T00:00:00"], scale="utc").mjd.reshape(2, 2)
+    # 1e-9 d (86 us): float MJD rounding; the error fixed here was up to 1 s (1.2e-5 d).
+    assert np.allclose(got, want, rtol=0, atol=EDGE_TOL_D)
+    assert round((got[1, 1] - got[1, 0]) * 86401) == 1801  # 30 min and the leap second

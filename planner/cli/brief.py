@@ -13,7 +13,8 @@ from ..brief import (
 )
 from ..errors import UserError
 from ..planfile import read_plan as read_plan_file
-from ..outputs import check_writable, write_atomic
+from ..outputs import write_all
+from .common import check_outputs
 
 NAME = "brief"
 HELP = "a printable operator brief (HTML or Markdown) from a plan file"
@@ -31,13 +32,16 @@ def add_arguments(p) -> None:
                    help="plan file from 'hiplan month' (hiplan.plan/1) or 'hiplan survey' "
                         "(hiplan.survey/1)")
     p.add_argument("--output", "-o", type=Path,
-                   help="write here: a .md/.markdown name gives Markdown, anything else HTML "
-                        "(default: print to the terminal)")
+                   help="write here: a .md/.markdown name gives Markdown, anything else HTML; "
+                        "'-' prints to standard output (default: PLAN-brief.html beside the plan, "
+                        "or PLAN-brief.md with --markdown, e.g. plan.json -> plan-brief.html)")
     p.add_argument("--markdown", action="store_true",
-                   help="Markdown instead of HTML (needed when printing Markdown to the terminal)")
+                   help="Markdown instead of HTML (needed with '-o -' to print Markdown)")
     p.add_argument("--no-charts", action="store_true", help="leave the charts out")
     p.add_argument("--force", action="store_true", help="replace existing output files")
-    p.epilog = ("HTML is one self-contained page (charts embedded) to print or open offline. "
+    p.epilog = ("Without -o the brief is written beside the plan (plan.json -> plan-brief.html); "
+                "an existing file is kept unless --force. HTML is one self-contained page (charts "
+                "embedded, a few hundred KB) to print or open offline; '-o -' prints it instead. "
                 "Markdown refers to its charts as PNG files written beside it "
                 "(<name>-month.png, <name>-depth.png).")
 
@@ -45,6 +49,21 @@ def add_arguments(p) -> None:
 def read_plan(path: Path) -> dict:
     """Read a plan file: ``planfile.read_plan`` (one-line errors naming the file)."""
     return read_plan_file(path)
+
+
+STDOUT = Path("-")
+
+
+def output_path(plan: Path, output: Path | None, markdown: bool) -> Path | None:
+    """The file to write: ``--output``, else ``<plan stem>-brief.html`` (``.md`` with
+    --markdown) beside the plan; None for ``-o -`` (standard output)."""
+    if output == STDOUT:
+        return None
+    if output is None:
+        output = plan.with_name(f"{plan.stem}-brief{'.md' if markdown else '.html'}")
+    if output.resolve() == plan.resolve():
+        raise UserError(f"{output}: the brief would replace the plan file itself; give -o")
+    return output
 
 
 def output_format(output: Path | None, markdown: bool) -> str:
@@ -86,29 +105,29 @@ def chart_path(output: Path, key: str) -> Path:
 
 
 def run(args, console: Console) -> int:
+    args.output = output_path(args.plan, args.output, args.markdown)
+    check_outputs(args, args.output)  # before any work: refuse early, write nothing
     doc = read_plan(args.plan)
     fmt = output_format(args.output, args.markdown)
     pngs = {} if args.no_charts else None
-    if args.output is not None:
-        check_writable(args.output, args.force)
-        if fmt == "markdown":
-            pngs = pngs if pngs is not None else chart_pngs(doc)
-            for key in pngs:
-                check_writable(chart_path(args.output, key), args.force)
+    if args.output is not None and fmt == "markdown":
+        pngs = pngs if pngs is not None else chart_pngs(doc)
+        check_outputs(args, args.output, *(chart_path(args.output, key) for key in pngs))
     if fmt == "html":
         text = brief_html(doc, pngs if pngs is not None else chart_pngs(doc))
     elif args.output is None:
         text = brief_markdown(doc)           # no file to put chart images beside
     else:
-        written = {}
-        for key, data in pngs.items():
-            path = write_atomic(chart_path(args.output, key), data, args.force)
-            written[key] = path.name          # relative: the images sit beside the Markdown
+        # relative names: the images sit beside the Markdown
+        written = {key: chart_path(args.output, key).name for key in pngs}
         text = brief_markdown(doc, written)
     if args.output is None:
         sys.stdout.write(text)
         return 0
-    write_atomic(args.output, text, args.force)
+    # The charts and the Markdown that names them are written together: all or none.
+    charts = ([(chart_path(args.output, key), data) for key, data in pngs.items()]
+              if fmt == "markdown" and pngs else [])
+    write_all([*charts, (args.output, text)], args.force)
     if console.file is sys.stdout:
         Console(stderr=True).print(f"wrote {args.output}", markup=False, highlight=False)
     return 0

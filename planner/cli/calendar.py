@@ -7,8 +7,8 @@ from rich.console import Console
 
 from ..errors import UserError
 from ..ical import calendar_bytes, plan_calendar, plan_events, read_plan
-from ..outputs import check_writable, write_atomic
-from .common import number
+from ..outputs import is_stdout, write_atomic
+from .common import add_alarm, check_outputs, note
 
 NAME = "calendar"
 HELP = "turn a plan file (hiplan month / survey JSON) into an iCalendar file"
@@ -19,10 +19,8 @@ def add_arguments(p) -> None:
                    help="drift plan (hiplan.plan/1) or survey plan (hiplan.survey/1)")
     p.add_argument("--output", "-o", type=Path, metavar="FILE.ics",
                    help="calendar file to write (default: the plan's path with .ics in place "
-                        "of its suffix, e.g. plan.json -> plan.ics)")
-    p.add_argument("--alarm", type=number(int, "--alarm", 0, 10080), metavar="MINUTES",
-                   help="reminder this many minutes before each task (default: the plan's "
-                        "alarm_minutes setting, else 15; 0 = at the start)")
+                        "of its suffix, e.g. plan.json -> plan.ics; '-': standard output)")
+    add_alarm(p, default=None)
     p.add_argument("--force", action="store_true", help="replace an existing calendar file")
 
 
@@ -36,7 +34,7 @@ def output_path(args) -> Path:
 
 def run(args, console: Console) -> int:
     out = output_path(args)
-    check_writable(out, args.force)  # before any work: refuse early, write nothing
+    check_outputs(args, out)  # before any work: refuse early, write nothing
     doc = read_plan(args.plan)
     events = plan_events(doc, str(args.plan))
     if not events:
@@ -50,5 +48,9 @@ def run(args, console: Console) -> int:
     labels = {"recording": "recordings", "repark": "re-park tasks", "target": "target blocks",
               "reference": "reference blocks"}
     detail = ", ".join(f"{counts[k]} {label}" for k, label in labels.items() if k in counts)
-    console.print(f"wrote {out}: {len(events)} events ({detail})", markup=False, highlight=False)
+    if is_stdout(out):  # the calendar is on standard output: the count goes to stderr
+        note(console, f"wrote the calendar to standard output: {len(events)} events ({detail})")
+    else:
+        console.print(f"wrote {out}: {len(events)} events ({detail})", markup=False,
+                      highlight=False)
     return 0

@@ -7,6 +7,7 @@ from __future__ import annotations
 
 import argparse
 import io
+import os
 import sys
 from datetime import date, datetime
 from pathlib import Path
@@ -15,7 +16,7 @@ from rich.console import Console
 
 from ..errors import UserError
 from ..galactic import galactic_to_icrs_deg
-from ..outputs import write_atomic
+from ..outputs import check_writable, is_stdout, write_all
 from ..pointing import (Pointing, from_altaz, from_hadec, on_meridian_at_dec,
                         on_meridian_at_elevation, require_reachable)
 from ..site import Site
@@ -55,8 +56,11 @@ def add_site(p):
 
 
 def add_output(p, formats=("table", "json", "csv")):
-    p.add_argument("--format", choices=formats, default=formats[0], help="output format")
-    p.add_argument("--output", "-o", type=Path, help="write to this file instead of the terminal")
+    p.add_argument("--format", choices=formats, default=formats[0],
+                   help=f"output format: {', '.join(formats[:-1])} or {formats[-1]} "
+                        f"(default {formats[0]})")
+    p.add_argument("--output", "-o", type=Path,
+                   help="write to this file instead of the terminal ('-': standard output)")
     p.add_argument("--force", action="store_true", help="replace an existing output file")
 
 
@@ -74,7 +78,9 @@ def add_pointing(p):
                    help="hour angle (deg, west positive), with --dec")
     g.add_argument("--elevation", type=number(float, "--elevation", 0, 90),
                    help="elevation on the meridian (deg)")
-    g.add_argument("--facing", choices=("north", "south"), help="meridian side for --elevation")
+    g.add_argument("--facing", choices=("north", "south"),
+                   help="meridian side for --elevation: north or south (default: toward the "
+                        "equator, or the site's facing)")
     g.add_argument("--alt", type=number(float, "--alt", 0, 90), help="elevation (deg), with --az")
     g.add_argument("--az", type=number(float, "--az", 0, 360, hi_open=True),
                    help="azimuth from north through east (deg), with --alt")
@@ -86,6 +92,26 @@ def add_target(p):
                    help="ICRS right ascension (deg), with --dec; --dec alone means a parked beam")
     g.add_argument("--l", type=number(float, "--l", 0, 360), help="galactic longitude (deg), with --b")
     g.add_argument("--b", type=number(float, "--b", -90, 90), help="galactic latitude (deg), with --l")
+
+
+def add_alarm(p, default: int | None = 15):
+    """--alarm MINUTES: calendar reminder lead, the same option in every command."""
+    from ..ical import MAX_ALARM_MINUTES
+    tail = f"default {default}" if default is not None else "default: the plan's alarm_minutes, else 15"
+    p.add_argument("--alarm", type=number(int, "--alarm", 0, MAX_ALARM_MINUTES), default=default,
+                   metavar="MINUTES", help=f"calendar reminder this many minutes before each task "
+                                           f"(0 = at the start; {tail})")
+
+
+def add_rotation(p, what: str = "rotation model for the tuning advice"):
+    from ..galaxy import PRESETS
+    p.add_argument("--rotation", default="iau1985", metavar="MODEL",
+                   help=f"{what}: {', '.join(PRESETS)} (default iau1985)")
+
+
+def add_log(p, what: str = "observation log (CSV) of what is already covered"):
+    p.add_argument("--log", action="append", metavar="FILE",
+                   help=f"{what}; repeat for several logs (a recording in two counts once)")
 
 
 def add_b_max(p):
@@ -114,7 +140,9 @@ def night_setting(args) -> tuple[bool, float, str]:
 
 def add_lsr_definition(p):
     p.add_argument("--lsr-def", default="standard", choices=("standard", "dynamical", "schoenrich2010"),
-                   help="solar motion defining the LSR (default: standard kinematic LSR)")
+                   help="solar motion defining the LSR: standard (the kinematic LSR, 20 km/s toward "
+                        "18h +30; default), dynamical (Delhaye 1965) or schoenrich2010 "
+                        "(Schoenrich, Binney & Dehnen 2010)")
 
 
 def resolve_pointing(args, site: Site) -> Pointing:
@@ -184,15 +212,80 @@ def today_at(site: Site) -> date:
     return datetime.now(site.tz).date()
 
 
-def emit(args, console: Console, text: str | None, renderable=None) -> None:
-    """Write ``text`` to --output atomically, or print it / the rich renderable."""
+def emit(args, console: Console, text: str | None, renderable=None, also=()) -> None:
+    """Write ``text`` (or the renderable as plain text) to --output, or print it.
+
+    ``also``: further (path, data) outputs (charts) written with it, all or none
+    (``outputs.write_all``). ``-o -`` is standard output.
+    """
     if args.output is not None:
-        write_atomic(args.output, text if text is not None else plain_text(renderable), args.force)
-        note(console, f"wrote {args.output}")
-    elif renderable is not None:
+        write_all([*also, (args.output, text if text is not None else plain_text(renderable))],
+                  args.force)
+        if not is_stdout(args.output):
+            note(console, f"wrote {args.output}")
+        return
+    if also:
+        write_all(also, args.force)
+    if renderable is not None:
         console.print(renderable)
     else:
         sys.stdout.write(text)
+
+
+# ----------------------------------------------------------------- inputs never overwritten
+
+def input_files(args, extra=()) -> list[tuple[str, Path]]:
+    """(what, path) of every input file the command's options name: site, windows, logs,
+    targets, plan (``extra``: more pairs). Names that are not files are left out."""
+    from ..site import site_file_path
+    found = list(extra)
+    if hasattr(args, "site"):  # None: the bundled default site
+        try:
+            found.append(("site file", site_file_path(args.site)))
+        except UserError:
+            pass  # an unknown site name is reported when the command loads it
+    logs = getattr(args, "log", None)
+    for path in ([logs] if isinstance(logs, (str, Path)) else logs or []):
+        found.append(("observation log", Path(path)))
+    for attr, what in (("windows", "windows file"), ("targets", "target file"), ("plan", "plan file")):
+        value = getattr(args, attr, None)
+        if value:
+            found.append((what, Path(str(value).strip())))
+    return found
+
+
+def _same_file(a: Path, b: Path) -> bool:
+    """True when writing ``a`` would replace ``b``: the same resolved path, or (both existing)
+    the same file through a symbolic or hard link."""
+    try:
+        if Path(a).resolve() == Path(b).resolve():
+            return True
+        return Path(a).exists() and Path(b).exists() and os.path.samefile(a, b)
+    except (OSError, ValueError):  # a windows text is not a path
+        return False
+
+
+def check_outputs(args, *paths, inputs=()) -> None:
+    """Refuse early, before any work: each output must be writable (``check_writable``),
+    different from the others, and none of the command's inputs (``input_files``).
+
+    --force replaces an existing output, never an input of the same command.
+    At most one output may be ``-`` (standard output).
+    """
+    outs = [p for p in paths if p is not None]
+    if sum(is_stdout(p) for p in outs) > 1:
+        raise UserError("only one output can go to standard output (-)")
+    files = [Path(p) for p in outs if not is_stdout(p)]
+    sources = input_files(args, inputs)
+    for out in files:
+        for what, source in sources:
+            if _same_file(out, source):
+                raise UserError(f"{out}: the output would replace the {what} this command reads "
+                                f"({source}); --force never replaces an input, so write elsewhere")
+        check_writable(out, getattr(args, "force", False))
+    for i, out in enumerate(files):
+        if any(_same_file(out, other) for other in files[:i]):
+            raise UserError(f"{out}: given for two outputs; each output needs its own file")
 
 
 def plain_text(renderable) -> str:

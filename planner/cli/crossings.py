@@ -3,13 +3,12 @@ from __future__ import annotations
 
 from rich.console import Console
 
-from ..outputs import check_writable
 from ..passages import search_passages_mjd
 from ..report import PASSAGE_FIELDS, crossings_document, crossings_renderable, to_csv, to_json
 from ..site import load_site
 from ..sunsafety import sun_approaches
-from .common import (add_b_max, add_output, add_period, add_pointing, add_site, emit, number, period_span,
-                     resolve_pointing)
+from .common import (add_b_max, add_output, add_period, add_pointing, add_site, check_outputs, emit,
+                     number, period_span, resolve_pointing)
 
 NAME = "crossings"
 HELP = "when a parked beam crosses the galactic plane"
@@ -25,8 +24,7 @@ def add_arguments(p) -> None:
 
 def run(args, console: Console) -> int:
     site = load_site(args.site)
-    if args.output is not None:
-        check_writable(args.output, args.force)
+    check_outputs(args, args.output)
     pointing = resolve_pointing(args, site)
     start_mjd, end_mjd = period_span(args, site)
     search = search_passages_mjd(site, pointing, start_mjd, end_mjd, args.b_max)

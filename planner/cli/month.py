@@ -9,15 +9,17 @@ from rich.console import Console
 from ..coverage import sweep
 from ..errors import UserError
 from ..galaxy import model_from_name
-from ..month import Goal, minutes_for_rms, move_slots, plan_month, sun_guard
-from ..obslog import coverage_minutes, read_log
-from ..outputs import check_writable, write_atomic
+from ..month import Goal, minutes_for_rms, move_slots
+from ..monthsearch import best_plan, tradeoff
+from ..monthsafety import sun_guard
+from ..obslog import coverage_minutes, read_logs
+from ..outputs import is_stdout, write_all
 from ..park import DEFAULT_TARGET_MINUTES, candidate_pointings, parse_want
 from ..planfile import drift_plan_document
 from ..report import month_renderable, to_json
 from ..site import load_site
-from ..timebase import local_day_span, parse_day
-from .common import (add_b_max, add_lsr_definition, add_night, add_site, current_setting, emit, figure_bytes,
+from ..timebase import check_supported, local_day_span, parse_day
+from .common import (add_alarm, add_b_max, add_log, add_rotation, add_lsr_definition, add_night, add_site, check_outputs, current_setting, emit, figure_bytes,
                      load_windows, night_setting, note, number, today_at)
 
 NAME = "month"
@@ -38,7 +40,7 @@ def add_arguments(p) -> None:
                        help=f"integration wanted per 1-degree bin (default {DEFAULT_TARGET_MINUTES:g} min)")
     depth.add_argument("--target-rms", type=number(float, "--target-rms", 0, 1e3, lo_open=True),
                        help="noise wanted per channel in each bin (K); sets the minutes")
-    p.add_argument("--log", help="observation log (CSV) of what is already covered")
+    add_log(p)
     p.add_argument("--windows", help="operator availability (file or text): moves happen at the "
                                      "first window of a day")
     p.add_argument("--record-in-windows", action="store_true",
@@ -47,7 +49,16 @@ def add_arguments(p) -> None:
     p.add_argument("--repark-minutes", type=number(float, "--repark-minutes", 0, 600), default=15.0,
                    help="time a volunteer needs to move the dish (default 15)")
     p.add_argument("--min-days-between-moves", type=number(int, "--min-days-between-moves", 1, 92),
-                   default=1, help="at most one move per this many days (default 1)")
+                   default=1, help="local days from one move to the next at least (default 1)")
+    p.add_argument("--max-moves", type=number(int, "--max-moves", 0, 92), metavar="N",
+                   help="move the dish at most N times in the period (default: no limit; an "
+                        "unknown start setting makes the first setting a move)")
+    p.add_argument("--optimize", type=number(float, "--optimize", 0, 3600), metavar="SECONDS",
+                   help="also run the exact integer program (HiGHS) for up to SECONDS, from the "
+                        "improved plan: a better plan or a proof, and a tighter bound")
+    p.add_argument("--tradeoff", action="store_true",
+                   help="also plan with at most 0, 1, 2, 4, 8 and any number of moves and show "
+                        "the wanted bins each reaches (a table, in JSON and in the brief)")
     p.add_argument("--start-dec", type=number(float, "--start-dec", -90, 90),
                    help="declination the dish is parked at now (default: the site's [pointing])")
     p.add_argument("--step", type=number(float, "--step", 0, 30, lo_open=True),
@@ -57,14 +68,15 @@ def add_arguments(p) -> None:
                    help="plan even settings and moves that bring the Sun within the site's "
                         "sun_hazard_deg of the feed (not advised): every such day then gets a "
                         "'cover the feed or move the dish' task, a calendar alarm and a warning")
-    p.add_argument("--rotation", default="iau1985", help="rotation model for tuning (default iau1985)")
-    p.add_argument("--alarm", type=number(int, "--alarm", 0, 1440), default=15,
-                   help="reminder lead for calendar events (minutes, default 15)")
+    add_rotation(p)
+    add_alarm(p)
     add_lsr_definition(p)
     o = p.add_argument_group("output")
-    o.add_argument("--format", choices=("table", "json"), default="table")
-    o.add_argument("--output", "-o", help="write the plan (JSON) to this file")
-    o.add_argument("--ics", help="also write the calendar (.ics) here")
+    o.add_argument("--format", choices=("table", "json"), default="table",
+                   help="what to print: table (default) or json (the plan, unless --output)")
+    o.add_argument("--output", "-o", help="write the plan (JSON) to this file ('-': standard "
+                                          "output, instead of the table)")
+    o.add_argument("--ics", help="also write the calendar (.ics) here ('-': standard output)")
     o.add_argument("--chart", help="also write the month chart here (.png or .svg) and the "
                                    "per-bin depth chart beside it (<name>-depth.<ext>)")
     o.add_argument("--force", action="store_true", help="replace existing output files")
@@ -80,12 +92,13 @@ def period_from(args, site) -> tuple[float, float, int, str]:
             first = date(year, month, 1)
         except ValueError:
             raise UserError(f"--month: '{args.month}' is not a month of the form YYYY-MM") from None
+        check_supported(first, "--month")
         nxt = date(year + (month == 12), month % 12 + 1, 1)
         days = (nxt - first).days
     else:
         first = parse_day(args.start, "--start") if args.start else today_at(site)
         days = args.days or 30
-    start_mjd, end_mjd = local_day_span(first, days, site.tz)
+    start_mjd, end_mjd = local_day_span(first, days, site.tz, "--month" if args.month else "--start/--days")
     return start_mjd, end_mjd, days, first.isoformat()
 
 
@@ -94,12 +107,12 @@ def build_plan(args, site):
     start_mjd, end_mjd, days, label = period_from(args, site)
     bw = site.rules.bin_width_deg
     want = parse_want(args.want, bw)
-    done = coverage_minutes(read_log(args.log), bw) if args.log else np.zeros(want.size)
+    done = coverage_minutes(read_logs(args.log), bw) if args.log else np.zeros(want.size)
     target = (minutes_for_rms(site, args.target_rms) if args.target_rms
               else (args.target_minutes or DEFAULT_TARGET_MINUTES))
     avail, intervals = load_windows(args.windows, site, start_mjd, end_mjd)
     # As written (our window syntax), so the plan can be read back by the charts.
-    windows_text = [rule.text for rule in avail.rules] if avail else []
+    windows_text = avail.normalised() if avail else []  # machine-readable (charts re-read it)
     current = _start_setting(site, args)
     pointings = candidate_pointings(site, args.step, extra=(current,) if current else ())
     if not pointings:
@@ -118,8 +131,13 @@ def build_plan(args, site):
     start_row = _start_row(current, result)
     goal = Goal(want=want, target_minutes=target, done_minutes=done)
     guard = sun_guard(result, enforce=not args.allow_sun_hazard)
-    plan = plan_month(result, goal, slots, start_row, args.repark_minutes, args.min_days_between_moves,
-                      guard)
+    if args.max_moves is not None and start_row is None and args.max_moves < 1:
+        raise UserError("--max-moves 0: the dish's current setting is unknown, so setting it is a "
+                        "move; give --start-dec or the site's [pointing], or allow a move")
+    plan, report = best_plan(result, goal, slots, start_row, args.repark_minutes,
+                             args.min_days_between_moves, guard, args.max_moves, args.optimize)
+    trade = (tradeoff(result, goal, slots, start_row, args.repark_minutes,
+                      args.min_days_between_moves, guard) if args.tradeoff else None)
     settings = {
         "b_max_deg": result.b_max_deg, "bin_width_deg": bw,
         "want": _want_ranges(args.want), "target_minutes": round(target, 3),
@@ -130,9 +148,14 @@ def build_plan(args, site):
         "repark_minutes": args.repark_minutes, "sun_min_sep_deg": site.rules.sun_min_sep_deg,
         "sun_hazard_deg": site.rules.sun_hazard_deg, "allow_sun_hazard": args.allow_sun_hazard,
         "lsr_definition": args.lsr_def, "rotation_model": args.rotation,
-        "alarm_minutes": args.alarm, "log": args.log,
+        "alarm_minutes": args.alarm, "log": list(args.log or []),
+        "max_moves": args.max_moves, "optimize_seconds": args.optimize,
     }
     doc = drift_plan_document(plan, settings, model_from_name(args.rotation), args.record_in_windows)
+    doc["summary"]["upper_bound"] = report.upper_bound
+    doc["summary"]["optimizer"] = report.record()
+    if trade is not None:
+        doc["summary"]["tradeoff"] = trade
     return plan, doc
 
 
@@ -173,6 +196,9 @@ def _start_row(current, result):
 def _chart_paths(chart: str):
     from pathlib import Path
     path = Path(chart)
+    if is_stdout(chart):
+        raise UserError("--chart: give a file name, not '-': the month chart and the depth chart "
+                        "are two files")
     if path.suffix.lower() not in (".png", ".svg"):
         raise UserError(f"--chart: '{chart}' must end in .png or .svg")
     return [path, path.with_name(f"{path.stem}-depth{path.suffix}")]
@@ -182,24 +208,32 @@ def run(args, console: Console) -> int:
     site = load_site(args.site)
     charts = _chart_paths(args.chart) if args.chart else []
     outputs = [p for p in (args.output, args.ics) if p] + [str(c) for c in charts]
-    for path in outputs:
-        check_writable(path, args.force)
     if len(set(outputs)) != len(outputs):
         raise UserError("--output, --ics and --chart must be different files")
+    if args.format == "json" and not args.output and is_stdout(args.ics):
+        raise UserError("--ics: '-' would put the calendar on standard output with the JSON plan "
+                        "(--format json); give --ics a file name, or the plan -o FILE")
+    check_outputs(args, *outputs)
     _, doc = build_plan(args, site)
+    # Every output is built in memory first and then written together (all or none), so a
+    # failure in the calendar or a chart leaves no plan file behind.
+    files = []
     if charts:
         from ..plots import depth_chart, month_chart
         for fig, path in ((month_chart(doc), charts[0]), (depth_chart(doc), charts[1])):
-            write_atomic(path, figure_bytes(fig, path.suffix[1:].lower()), args.force)
+            files.append((path, figure_bytes(fig, path.suffix[1:].lower())))
     if args.output:
-        write_atomic(args.output, to_json(doc), args.force)
+        files.append((args.output, to_json(doc)))
     if args.ics:
         from ..ical import calendar_bytes, plan_calendar
-        write_atomic(args.ics, calendar_bytes(plan_calendar(doc, args.alarm)), args.force)
+        files.append((args.ics, calendar_bytes(plan_calendar(doc, args.alarm))))
+    write_all(files, args.force)
+    to_stdout = any(is_stdout(p) for p in outputs)  # '-': standard output holds that file only
     if args.format == "json" and not args.output:
         emit(args, console, to_json(doc))
-    elif args.format == "table":
+    elif args.format == "table" and not to_stdout:
         console.print(month_renderable(doc))
     for path in outputs:
-        note(console, f"wrote {path}")
+        if not is_stdout(path):
+            note(console, f"wrote {path}")
     return 0

@@ -6,14 +6,13 @@ from rich.console import Console
 
 from ..coverage import sweep
 from ..errors import UserError
-from ..obslog import coverage_minutes, read_log
-from ..outputs import check_writable, write_atomic
+from ..obslog import coverage_minutes, read_logs
 from ..park import DEFAULT_TARGET_MINUTES, advise, candidate_pointings, parse_want, recommended
 from ..report import PARK_FIELDS, park_document, park_renderable, to_csv, to_json
 from ..site import load_site
 from ..sunsafety import sun_approaches
-from .common import (add_b_max, add_lsr_definition, add_night, add_output, add_period, add_site,
-                     current_setting, emit, figure_bytes, load_windows, night_setting, number,
+from .common import (add_b_max, add_log, add_lsr_definition, add_night, add_output, add_period, add_site,
+                     check_outputs, current_setting, emit, figure_bytes, load_windows, night_setting, number,
                      period_span)
 
 NAME = "park"
@@ -27,7 +26,7 @@ def add_arguments(p) -> None:
                    help="declination step (deg; default half the beamwidth)")
     add_b_max(p)
     p.add_argument("--want", help="wanted longitude ranges, e.g. 30-90,120-140 (default all)")
-    p.add_argument("--log", help="observation log (CSV) of what is already covered")
+    add_log(p)
     p.add_argument("--target-minutes", type=number(float, "--target-minutes", 0, 1e5, lo_open=True),
                    default=DEFAULT_TARGET_MINUTES,
                    help=f"integration wanted per bin (minutes; default {DEFAULT_TARGET_MINUTES:g})")
@@ -43,17 +42,16 @@ def add_arguments(p) -> None:
 
 def run(args, console: Console) -> int:
     site = load_site(args.site)
-    if args.output is not None:
-        check_writable(args.output, args.force)
     plot_paths = _plot_paths(args.plot, args.force) if args.plot else None
+    check_outputs(args, args.output, *(plot_paths or ()))
     start_mjd, end_mjd = period_span(args, site)
     bw = site.rules.bin_width_deg
     want = parse_want(args.want, bw)
     done = np.zeros(want.size)
     if args.log:
-        done = coverage_minutes(read_log(args.log), bw)
+        done = coverage_minutes(read_logs(args.log), bw)
     avail, intervals = load_windows(args.windows, site, start_mjd, end_mjd)
-    windows_text = avail.describe() if avail else []
+    windows_text = avail.normalised() if avail else []
     current = current_setting(site)
     pointings = candidate_pointings(site, args.step, extra=(current,) if current else ())
     if not pointings:
@@ -66,14 +64,14 @@ def run(args, console: Console) -> int:
     advice = advise(result, want, done, args.target_minutes, approaches)
     doc = park_document(result, advice, args.want, args.target_minutes, args.log, windows_text,
                         night_kind if night_only else None)
-    if plot_paths:
-        _write_plots(plot_paths, result, advice, want, done, args, site)
+    # Charts and the main output are built first and written together: all or none.
+    plots = _plot_files(plot_paths, result, advice, want, done, args, site) if plot_paths else []
     if args.format == "json":
-        emit(args, console, to_json(doc))
+        emit(args, console, to_json(doc), also=plots)
     elif args.format == "csv":
-        emit(args, console, to_csv(doc["declinations"], PARK_FIELDS))
+        emit(args, console, to_csv(doc["declinations"], PARK_FIELDS), also=plots)
     else:
-        emit(args, console, None, park_renderable(doc, args.top))
+        emit(args, console, None, park_renderable(doc, args.top), also=plots)
     return 0
 
 
@@ -83,24 +81,21 @@ def _plot_paths(plot: str, force: bool):
     if atlas.suffix.lower() not in (".png", ".svg"):
         raise UserError(f"--plot: '{plot}' must end in .png or .svg")
     sky = atlas.with_name(f"{atlas.stem}-sky{atlas.suffix}")
-    for path in (atlas, sky):
-        check_writable(path, force)
     return atlas, sky
 
 
-def _write_plots(paths, result, advice, want, done, args, site) -> None:
-    """Render the atlas and the best declination's sky track; write them atomically."""
+def _plot_files(paths, result, advice, want, done, args, site) -> list:
+    """(path, bytes) of the atlas and the best declination's sky track, for ``emit``."""
     from ..plots import coverage_atlas, sky_track_map
     atlas_path, sky_path = paths
     figures = [(atlas_figure(result, want, done, args.target_minutes, coverage_atlas), atlas_path),
                (sky_figure(result, (recommended(advice) or advice)[0], sky_track_map), sky_path)]
-    for fig, path in figures:
-        write_atomic(path, figure_bytes(fig, path.suffix.lstrip(".").lower()), args.force)
+    return [(path, figure_bytes(fig, path.suffix.lstrip(".").lower())) for fig, path in figures]
 
 
 def atlas_figure(result, want, done, target_minutes, coverage_atlas):
     """The coverage atlas of a sweep: usable hours per declination and bin."""
-    from ..report import period_summary
+    from ..report import period_days_text, period_summary
     bw = result.bin_width_deg
     # Meridian settings only (the dish's current setting may be anywhere), by culmination.
     upper = [r for r in result.rows if r.pointing.culmination == "upper" and r.pointing.facing in
@@ -115,7 +110,8 @@ def atlas_figure(result, want, done, target_minutes, coverage_atlas):
         lower_dec_deg=[r.pointing.dec_deg for r in lower],
         lower_hours=np.array([r.bin_usable_s / 3600.0 for r in lower]).reshape(len(lower), -1),
         wanted_bins=result.bin_starts_deg[want], covered_bins=result.bin_starts_deg[done >= target_minutes],
-        site_name=result.site.name, period_text=f"{period['start_local'][:10]} – {period['end_local'][:10]}",
+        covered_fraction=np.minimum(done / target_minutes, 1.0),
+        site_name=result.site.name, period_text=period_days_text(period),
         b_max_deg=result.b_max_deg, bin_width_deg=bw)
 
 

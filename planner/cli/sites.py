@@ -6,7 +6,7 @@ from rich.table import Table
 
 from ..report import to_json
 from ..site import available_sites, load_site
-from .common import add_output, emit
+from .common import add_output, check_outputs, emit
 
 NAME = "sites"
 HELP = "list the site files hiplan can find"
@@ -17,6 +17,7 @@ def add_arguments(p) -> None:
 
 
 def run(args, console: Console) -> int:
+    check_outputs(args, args.output, inputs=[("site file", p) for p in available_sites().values()])
     rows = []
     for stem, path in available_sites().items():
         site = load_site(str(path))

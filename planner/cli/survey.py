@@ -11,15 +11,14 @@ from rich.text import Text
 
 from ..errors import UserError
 from ..galaxy import model_from_name
-from ..obslog import read_log
-from ..outputs import check_writable
+from ..obslog import read_logs
 from ..report import period_summary, to_csv, to_json
 from ..site import load_site
 from ..slew import slew_model
 from ..survey import BLOCK_FIELDS, SurveySettings, plan_survey, repeats_done_from_log, survey_document
 from ..targets import GRID_EXAMPLE, check_unique, parse_grid, parse_reference, read_targets
-from ..windows import ALWAYS, read_windows
-from .common import (add_lsr_definition, add_night, add_output, add_period, add_site, emit,
+from ..windows import ALWAYS, describe_window_texts, read_windows
+from .common import (add_alarm, add_log, add_rotation, add_lsr_definition, add_night, add_output, add_period, add_site, check_outputs, emit,
                      night_setting, number, period_span)
 
 NAME = "survey"
@@ -49,27 +48,22 @@ def add_arguments(p) -> None:
     c.add_argument("--windows", help="operator availability: windows text ('Mon-Fri 19:00-23:30') "
                                      "or a file of them; slews and blocks stay inside")
     add_night(c, "observe only")
-    c.add_argument("--log", metavar="FILE",
-                   help="observation log: targets whose longitude bin already has their minutes "
-                        "count as done")
+    add_log(c, "observation log: targets whose longitude bin already has their minutes "
+               "count as done")
     c.add_argument("--sun-sep", type=number(float, "--sun-sep", 0, 180),
                    help="least distance from the Sun (deg)")
     c.add_argument("--moon-sep", type=number(float, "--moon-sep", 0, 180),
                    help="least distance from the Moon (deg; 0 = no Moon rule)")
-    p.add_argument("--rotation", default="iau1985",
-                   help="rotation model for the tuning advice: iau1985 (default), reid2014, "
-                        "reid2019, brand-blitz1993")
+    add_rotation(p)
     add_lsr_definition(p)
-    p.add_argument("--alarm-minutes", type=number(float, "--alarm-minutes", 0, 1440), default=15.0,
-                   help="reminder lead for calendar events made from this plan (default 15)")
+    add_alarm(p)
     add_output(p)
 
 
 def run(args, console) -> int:
     site = load_site(args.site)
     slew_model(site)  # a clear error for transit or fixed mounts before any work
-    if args.output is not None:
-        check_writable(args.output, args.force)
+    check_outputs(args, args.output)
     targets = []
     if args.grid is not None:
         targets += parse_grid(args.grid, args.minutes, args.priority, args.repeats)
@@ -86,7 +80,7 @@ def run(args, console) -> int:
     start_mjd, end_mjd = period_span(args, site)
     done = None
     if args.log is not None:
-        done = repeats_done_from_log(targets, read_log(args.log), site.rules.bin_width_deg)
+        done = repeats_done_from_log(targets, read_logs(args.log), site.rules.bin_width_deg)
     night_only, night_alt, night_kind = night_setting(args)
     settings = SurveySettings(
         start_mjd=start_mjd, end_mjd=end_mjd,
@@ -95,7 +89,7 @@ def run(args, console) -> int:
         night_only=night_only, night_sun_alt_deg=night_alt, night=night_kind,
         sun_hazard_deg=site.rules.sun_hazard_deg, availability=availability, reference=reference,
         reference_minutes=args.reference_minutes, lsr_definition=args.lsr_def, rotation=model,
-        rotation_name=args.rotation.strip().lower(), alarm_minutes=args.alarm_minutes)
+        rotation_name=args.rotation.strip().lower(), alarm_minutes=args.alarm)
     plan = plan_survey(site, targets, settings, done)
     doc = survey_document(plan, period_summary(start_mjd, end_mjd, site.tz))
     if args.format == "json":
@@ -121,6 +115,13 @@ def _local(iso_local: str) -> str:
     return iso_local[11:16]
 
 
+def _shown(block: dict) -> tuple[str, str]:
+    """Local HH:MM start and end of a block, rounded as every output rounds them (outward)."""
+    from ..planfile import shown_span
+    start, end = shown_span(*(datetime.fromisoformat(block[k]) for k in ("start_local", "end_local")))
+    return f"{start:%H:%M}", f"{end:%H:%M}"
+
+
 def survey_renderable(doc: dict):
     """Header, one table row per block in local time, totals and the unscheduled targets."""
     site, period, settings, summary = doc["site"], doc["period"], doc["settings"], doc["summary"]
@@ -137,13 +138,14 @@ def survey_renderable(doc: dict):
                 f"elevation {site['elevation_min_deg']:g}–{site['elevation_max_deg']:g}° and mask")
     if settings["night_only"]:
         head.append(f", night only ({settings.get('night') or 'horizon'})")
-    head.append("\nWindows: " + ("; ".join(settings["windows"]) if settings["windows"] else "any time"))
+    head.append("\nWindows: " + ("; ".join(describe_window_texts(settings["windows"]))
+                                  if settings["windows"] else "any time"))
     if settings["reference"]:
         head.append(f"\nReferences: {settings['reference']}")
     table = Table(box=box.SIMPLE_HEAD, header_style="bold", pad_edge=False)
     for name, justify in [("Date", "left"), ("Start", "right"), ("End", "right"), ("Kind", "left"),
                           ("Name", "left"), ("l, b °", "right"),
-                          ("El °", "right"), ("Az °", "right"), ("Sun°", "right"),
+                          ("El °", "right"), ("Drive az °", "right"), ("Sun°", "right"),
                           ("LSR km/s", "right"), ("MHz", "right")]:
         table.add_column(name, justify=justify, no_wrap=True)
     last_date = None
@@ -152,14 +154,14 @@ def survey_renderable(doc: dict):
         day = _date_label(b["start_local"]) if date != last_date else ""
         last_date = date
         if b["kind"] == "stow":
-            table.add_row(day, _local(b["start_local"]), _local(b["end_local"]), "stow",
+            table.add_row(day, *_shown(b), "stow",
                           "safe from the Sun", "",
                           f"{b['alt_start_deg']:.0f}", f"{b['drive_az_start_deg']:.0f}",
                           "" if b["sun_sep_min_deg"] is None else f"{b['sun_sep_min_deg']:.0f}",
                           "", "", style="dim")
             continue
         if b["kind"] == "slew":
-            table.add_row(day, _local(b["start_local"]), _local(b["end_local"]), "slew",
+            table.add_row(day, *_shown(b), "slew",
                           f"→ {b['name']} ({b['minutes'] * 60:.0f} s)", "",
                           f"{b['alt_start_deg']:.0f}→{b['alt_end_deg']:.0f}",
                           f"{b['drive_az_start_deg']:.0f}→{b['drive_az_end_deg']:.0f}", "", "", "",
@@ -167,7 +169,7 @@ def survey_renderable(doc: dict):
             continue
         tuning = b["tuning"]
         table.add_row(
-            day, _local(b["start_local"]), _local(b["end_local"]), {"target": "on", "reference": "off"}.get(b["kind"], b["kind"]), b["name"],
+            day, *_shown(b), {"target": "on", "reference": "off"}.get(b["kind"], b["kind"]), b["name"],
             f"{b['l_deg']:.1f}, {b['b_deg']:+.1f}",
             f"{b['alt_start_deg']:.0f}→{b['alt_end_deg']:.0f}",
             f"{b['drive_az_start_deg']:.0f}→{b['drive_az_end_deg']:.0f}",
@@ -183,6 +185,10 @@ def survey_renderable(doc: dict):
                    "(safe from the Sun)." if summary.get("stows") else "."))
     if summary["done_before"]:
         foot.append(f" {summary['done_before']} integrations already in the log.")
+    if settings.get("azimuth_min_deg") is not None:
+        foot.append(f"\nDrive az: the angle to set on the azimuth drive, on the cable wrap "
+                    f"{settings['azimuth_min_deg']:g}…{settings['azimuth_max_deg']:g}°; the sky "
+                    "azimuth (north through east) is the same angle taken modulo 360°.", style="dim")
     by_reason = defaultdict(list)
     for u in doc["unscheduled"]:
         by_reason[u["reason"]].append(u["name"])

@@ -8,7 +8,6 @@ from ..doppler import velocity_corrections
 from ..errors import UserError
 from ..galactic import icrs_to_galactic_deg
 from ..galaxy import hi_velocity_envelope, model_from_name
-from ..outputs import check_writable
 from ..passages import search_passages_mjd
 from ..report import to_json, tune_document, tune_renderable
 from ..sensitivity import days_to_reach, drift_time_s, radiometer_rms_k
@@ -16,8 +15,9 @@ from ..site import load_site
 from ..spectral import tuning_advice
 from ..timebase import parse_instant
 from ..tuning import LineSetup, drift_depth, line_setup
-from .common import (add_b_max, add_lsr_definition, add_output, add_period, add_pointing, add_site, add_target,
-                     emit, number, period_span, resolve_pointing, sky_target)
+from .common import (add_b_max, add_lsr_definition, add_output, add_period, add_pointing,
+                     add_rotation, add_site, add_target, check_outputs, emit, number, period_span,
+                     resolve_pointing, sky_target)
 
 NAME = "tune"
 HELP = "receiver centre frequency, band fit and expected noise"
@@ -29,8 +29,7 @@ def add_arguments(p) -> None:
     add_pointing(p)
     add_period(p, default_days=30)
     add_b_max(p)
-    p.add_argument("--rotation", default="iau1985",
-                   help="rotation model: iau1985 (default), reid2014, reid2019, brand-blitz1993")
+    add_rotation(p, "rotation model")
     p.add_argument("--dispersion", type=number(float, "--dispersion", 0, 100),
                    help="velocity margin added to the envelope (km/s; default 10)")
     p.add_argument("--disc-radius", type=number(float, "--disc-radius", 0, 100, lo_open=True),
@@ -50,8 +49,10 @@ def add_arguments(p) -> None:
 
 def run(args, console: Console) -> int:
     site = load_site(args.site)
-    if args.output is not None:
-        check_writable(args.output, args.force)
+    # Without --site, --plan looks its site up among every known site file: all are inputs.
+    from ..site import available_sites
+    known = available_sites().values() if args.plan and not args.site else ()
+    check_outputs(args, args.output, inputs=[("site file", path) for path in known])
     overrides = {k: v for k, v in (("dispersion_kms", args.dispersion),
                                    ("disc_radius_kpc", args.disc_radius)) if v is not None}
     model = model_from_name(args.rotation, **overrides)
@@ -86,7 +87,9 @@ def run(args, console: Console) -> int:
         depth = drift_depth(usable, end_mjd - start_mjd, site.receiver, args.target_rms, factor)
         doc = tune_document(site, setup, model, args.lsr_def, start_mjd, end_mjd,
                             pointing=pointing, b_max_deg=b_max, l_bins=bins, depth=depth,
-                            drift_s=float(drift_time_s(site.dish.beamwidth_deg, pointing.dec_deg)))
+                            drift_s=float(drift_time_s(site.dish.beamwidth_deg, pointing.dec_deg)),
+                            passage=(None if args.passage is None else
+                                     (args.passage, len(search.passages), usable[0])))
     else:
         ra, dec = target
         mjd = np.arange(start_mjd, end_mjd + 1e-9, 1.0 / 144)  # every 10 minutes

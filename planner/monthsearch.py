@@ -1,0 +1,265 @@
+"""Month plans near the optimum: local search after the greedy, and the whole optimisation.
+
+On the interval model of ``monthmodel``:
+
+* ``improve``: deterministic local search from a plan (the greedy's). Each round
+  applies the best change, among (a) give any run of intervals [i, j) any row
+  (this moves, splits, merges and shifts parkings) and (b) give two parkings any
+  two rows at once (this swaps them, too; all pairs in plans of up to 8
+  parkings, near pairs beyond) and (c) put the parkings' rows in another order
+  (every order, for 3 to 6 parkings), that obeys every rule and improves the
+  objective; it stops when none does, or after ``MAX_ROUNDS`` rounds (a count,
+  not a time, so every machine gets the same plan). Candidates are scored for
+  every row at once from prefix sums over intervals (``monthmodel.run_contrib``);
+  the few passages spanning more than one move slot are left out of that fast
+  score and counted exactly before a change is accepted.
+* ``optimize``: greedy, then local search, then (when asked) the integer
+  program of ``monthmip``; always a proven bound (the integer program's when it
+  ran, else its linear relaxation's); the best plan by the objective, re-counted
+  exactly, never worse than the greedy's.
+"""
+from __future__ import annotations
+
+import itertools
+import time
+from dataclasses import dataclass
+
+import numpy as np
+
+from .monthmip import linear_bound, solve_exact
+from .monthmodel import (Prefix, SlotModel, build_model, exact_depth, fast_depth, feasible,
+                         parkings_of_rows, rows_of_plan, run_contrib, runs_of, score_of)
+
+
+# Local-search rounds at most (each applies the best change found); a count, not a time,
+# keeps the result the same on every machine. A month needs 5 to 20.
+MAX_ROUNDS = 40
+
+
+def _better(bins, progress, moves, best) -> np.ndarray:
+    """Mask of candidate scores (arrays) better than ``best`` in the objective's order."""
+    prog = np.round(progress, 6)
+    ref = round(best.progress, 6)
+    return (bins > best.bins) | ((bins == best.bins) & ((prog > ref)
+                                                        | ((prog == ref) & (moves < best.moves))))
+
+
+def _scores(m: SlotModel, depth: np.ndarray):
+    """(bins at target, capped progress) of candidate depths (..., B)."""
+    want = depth[..., m.want]
+    return (np.count_nonzero(want >= m.target - 1e-9, axis=-1),
+            (np.minimum(want, m.target) / m.target).sum(axis=-1))
+
+
+# Reassigning two parkings at once is tried for every pair when a plan has at most this
+# many parkings, and for neighbours and next-but-one neighbours beyond (cost grows as the
+# square of the rows for each pair).
+_ALL_PAIRS_UP_TO = 8
+# Every order of the parkings' rows is tried for plans of 3 to this many parkings (720).
+_PERMUTE_UP_TO = 6
+
+
+def _polish_moves(m: SlotModel, p: Prefix, rows: np.ndarray) -> np.ndarray:
+    """Each move shifted to its best slot between its neighbours (fast score), repeated
+    until none moves: coordinate ascent over the move slots, the rows' order kept."""
+    rows = rows.copy()
+    best = score_of(m, fast_depth(m, p, rows), rows).key
+    changed = True
+    while changed:  # a few sweeps
+        changed = False
+        runs = runs_of(rows)
+        for k in range(1, len(runs)):
+            if runs[k - 1][0] < 0 and runs[k - 1][1] == 0 and runs[k - 1][2] == 1:
+                continue  # the first setting after an unknown start: at the first slot
+            lo, hi = runs[k - 1][1] + 1, runs[k][2] - 1
+            left, right = runs[k - 1][0], runs[k][0]
+            for q in range(lo, hi + 1):  # every slot between the neighbours
+                trial = rows.copy()
+                trial[lo - 1 + 1:q] = left
+                trial[q:hi + 1] = right
+                key = score_of(m, fast_depth(m, p, trial), trial).key
+                if key > best:
+                    rows, best, changed = trial, key, True
+            runs = runs_of(rows)
+            if len(runs) <= k:
+                break
+    return rows
+
+
+def improve(m: SlotModel, rows: np.ndarray, max_rounds: int = MAX_ROUNDS) -> np.ndarray:
+    """Deterministic local search from a feasible plan (module docstring); never worse.
+
+    Moves: (a) any run of intervals [i, j) to any row; (b) two parkings to any two rows
+    at once (this includes swapping them). Each round applies the best candidate, by
+    its exact re-count, that obeys every rule.
+    """
+    p = Prefix(m)
+    rows = rows.copy()
+    best = score_of(m, exact_depth(m, p, rows), rows)
+    n_q, n_rows = m.n_int, m.n_rows
+    all_rows = np.arange(n_rows)
+    for _ in range(max_rounds):
+        depth = fast_depth(m, p, rows)
+        runs = runs_of(rows)
+        run_at = np.repeat(np.arange(len(runs)), [j - i for _, i, j in runs])
+        contrib = [run_contrib(p, [r], [i], [j], [i >= 1])[0] for r, i, j in runs]
+        moves_now = score_of(m, depth, rows).moves
+        candidates = []  # (key, assignments ((i, j, row), ...)) of improving candidates
+        for i in range(1, n_q):  # (a) every run of intervals [i, j)
+            left = run_at[i - 1]
+            a, la, _ = runs[left]
+            for j in range(i + 1, n_q + 1):
+                right = run_at[j] if j < n_q else None
+                last = right if right is not None else len(runs) - 1
+                old = sum(contrib[left:last + 1])
+                inner_moves = sum(1 for x in runs[left + 1:last + 1] if x[1] >= 1)
+                c, _, rc_end = runs[right] if right is not None else (-2, n_q, n_q)
+                same_a, same_c = all_rows == a, all_rows == c
+                mid_start = np.where(same_a, la, i)
+                mid_end = np.where(same_c, rc_end, j)
+                mid_fresh = np.where(same_a, la >= 1, True)
+                new = run_contrib(p, all_rows, mid_start, mid_end, mid_fresh)
+                new += np.where(same_a[:, None], 0.0, run_contrib(p, [a], [la], [i], [la >= 1]))
+                if right is not None:
+                    new += np.where(same_c[:, None], 0.0, run_contrib(p, [c], [j], [rc_end], [True]))
+                bins, progress = _scores(m, depth[None, :] - old[None, :] + new)
+                moves = (moves_now - inner_moves + (~same_a) + ((~same_c) & (right is not None)))
+                for r in np.flatnonzero(_better(bins, progress, moves, best)):
+                    candidates.append(((int(bins[r]), round(float(progress[r]), 6), -int(moves[r])),
+                                       ((i, j, int(r)),)))
+        # (b) two parkings at once; merges with neighbours are ignored in this fast score.
+        parks = [k for k in range(len(runs)) if runs[k][1] >= 1]
+        own = {k: run_contrib(p, all_rows, runs[k][1], runs[k][2], True) for k in parks}
+        for x, k in enumerate(parks):
+            for k2 in parks[x + 1:]:
+                if len(parks) > _ALL_PAIRS_UP_TO and k2 - k > 2:
+                    continue
+                base = depth - contrib[k] - contrib[k2]
+                bins, progress = _scores(m, base[None, None, :] + own[k][:, None, :]
+                                         + own[k2][None, :, :])
+                good = _better(bins, progress, np.full(bins.shape, moves_now), best)
+                good[runs[k][0], runs[k2][0]] = False
+                for r1, r2 in zip(*np.nonzero(good)):
+                    candidates.append(((int(bins[r1, r2]), round(float(progress[r1, r2]), 6),
+                                        -moves_now),
+                                       ((runs[k][1], runs[k][2], int(r1)),
+                                        (runs[k2][1], runs[k2][2], int(r2)))))
+        # (c) the parkings' rows in another order, each order with its move days polished
+        # (every order, for up to 6 parkings): a different order usually wants the moves
+        # a day or two earlier or later.
+        if 2 < len(parks) <= _PERMUTE_UP_TO:
+            for order in itertools.permutations(range(len(parks))):
+                if list(order) == sorted(order):
+                    continue
+                trial = rows.copy()
+                for k, src in zip(parks, order):
+                    trial[runs[k][1]:runs[k][2]] = runs[parks[src]][0]
+                trial = _polish_moves(m, p, trial)
+                score = score_of(m, fast_depth(m, p, trial), trial)
+                if score.key > best.key:
+                    candidates.append((score.key, tuple((i, j, r) for r, i, j in runs_of(trial))))
+        accepted = False
+        for key, assign in sorted(candidates, key=lambda c: (c[0], [(-i, -j, -r) for i, j, r in c[1]]),
+                                  reverse=True):
+            trial = rows.copy()
+            for i, j, r in assign:
+                trial[i:j] = r
+            if not feasible(m, trial):
+                continue
+            score = score_of(m, exact_depth(m, p, trial), trial)
+            if score.key > best.key:
+                rows, best, accepted = trial, score, True
+                break
+        if not accepted:
+            break
+    return rows
+
+
+# ------------------------------------------------------------------ the whole optimisation
+
+
+@dataclass(frozen=True)
+class OptimizeReport:
+    """How a month plan was found and how good it is."""
+
+    greedy_bins: int
+    bins: int
+    moves: int
+    upper_bound: int  # no plan under the same rules brings more wanted bins to target
+    bound_source: str  # "linear relaxation" | "integer program" | "integer program (optimal)"
+    method: str
+    seconds: float
+
+    def record(self) -> dict:
+        return {"method": self.method, "greedy_bins": self.greedy_bins, "bins": self.bins,
+                "moves": self.moves, "upper_bound": self.upper_bound,
+                "bound_source": self.bound_source, "seconds": round(self.seconds, 2)}
+
+
+def optimize(m: SlotModel, greedy_rows: np.ndarray, exact_seconds: float | None = None,
+             max_rounds: int = MAX_ROUNDS) -> tuple[np.ndarray, OptimizeReport]:
+    """Best plan from the greedy's: local search, then the integer program if asked.
+
+    The result is never worse than the greedy's plan (the objective, re-counted
+    exactly); the bound is the integer program's when it ran, else the linear
+    relaxation's, and never below the plan found.
+    """
+    started = time.perf_counter()
+    p = Prefix(m)
+
+    def judged(rows):
+        return score_of(m, exact_depth(m, p, rows), rows)
+
+    best_rows = greedy_rows
+    greedy = judged(greedy_rows)
+    best = greedy
+    method = "greedy"
+    if feasible(m, greedy_rows):
+        improved = improve(m, greedy_rows, max_rounds)
+        if judged(improved).key > best.key:
+            best_rows, best = improved, judged(improved)
+        method = "greedy + local search"
+    if exact_seconds:
+        exact = solve_exact(m, best_rows, exact_seconds)
+        if feasible(m, exact.rows) and judged(exact.rows).key > best.key:
+            best_rows, best = exact.rows, judged(exact.rows)
+        method += " + integer program"
+        bound = exact.bound_bins
+        source = "integer program (optimal)" if exact.optimal else "integer program"
+    else:
+        bound, source = linear_bound(m), "linear relaxation"
+    report = OptimizeReport(greedy_bins=greedy.bins, bins=best.bins, moves=best.moves,
+                            upper_bound=max(bound, best.bins), bound_source=source,
+                            method=method, seconds=time.perf_counter() - started)
+    return best_rows, report
+
+
+def best_plan(sweep, goal, slots, start_row: int | None, repark_minutes: float = 15.0,
+              min_days_between_moves: int = 1, guard=None, max_moves: int | None = None,
+              exact_seconds: float | None = None, max_rounds: int = MAX_ROUNDS):
+    """(``month.MonthPlan``, ``OptimizeReport``): the greedy, improved (``optimize``)."""
+    from .month import plan_from_parkings, plan_month
+    greedy = plan_month(sweep, goal, slots, start_row, repark_minutes, min_days_between_moves,
+                        guard, max_moves)
+    model = build_model(sweep, goal, slots, start_row, repark_minutes, min_days_between_moves,
+                        max_moves, guard)
+    rows, report = optimize(model, rows_of_plan(model, greedy.parkings), exact_seconds, max_rounds)
+    return plan_from_parkings(sweep, goal, parkings_of_rows(model, rows), guard,
+                              repark_minutes), report
+
+
+# Move caps of the trade-off table: how often someone must climb to the jack.
+TRADEOFF_CAPS = (0, 1, 2, 4, 8, None)
+
+
+def tradeoff(sweep, goal, slots, start_row: int | None, repark_minutes: float = 15.0,
+             min_days_between_moves: int = 1, guard=None) -> list[dict]:
+    """Wanted bins at target for each move cap in ``TRADEOFF_CAPS`` (None: no cap), with the
+    moves used and the linear bound, each from the same greedy + local search."""
+    out = []
+    for cap in TRADEOFF_CAPS:  # six short optimisations
+        plan, report = best_plan(sweep, goal, slots, start_row, repark_minutes,
+                                 min_days_between_moves, guard, cap)
+        out.append({"max_moves": cap, "bins": report.bins, "moves": report.moves,
+                    "upper_bound": report.upper_bound})
+    return out
