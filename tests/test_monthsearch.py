@@ -130,3 +130,80 @@ def test_local_search_is_deterministic(march):
     b = best_plan(result, goal, slots, 5, guard=guard, max_moves=4)[0]
     assert [(q.row, q.move_mjd, q.end_mjd) for q in a.parkings] == \
            [(q.row, q.move_mjd, q.end_mjd) for q in b.parkings]
+
+
+def _month_json(tmp_path, capsys, *argv):
+    out = tmp_path / "plan.json"
+    assert main(["month", *argv, "--format", "json", "-o", str(out)]) == 0
+    capsys.readouterr()
+    return read_plan(out)
+
+
+DEMO = ("--site", "hollowmere", "--month", "2027-03", "--want", "30-90,120-200",
+        "--log", "examples/observation-log.csv", "--windows", "examples/windows.txt")
+
+
+@pytest.mark.parametrize("extra,at_least", [
+    (("--max-moves", "4"), 42),
+    (("--min-days-between-moves", "3", "--max-moves", "3"), 41),
+])
+def test_demo_targets(tmp_path, capsys, extra, at_least):
+    """The demo month with a move cap: at least the bins an earlier exact search found
+    possible with that many moves, and never more moves than allowed; a proven bound."""
+    doc = _month_json(tmp_path, capsys, *DEMO, *extra)
+    s = doc["summary"]
+    cap = int(extra[-1])
+    assert s["done_after"] >= at_least and s["moves"] <= cap
+    assert s["upper_bound"] >= s["done_after"] and s["optimizer"]["greedy_bins"] <= s["done_after"]
+    moves = [d["date"] for d in doc["days"] if d["park"] and d["park"]["move"]]
+    if "--min-days-between-moves" in extra:
+        gaps = [(date.fromisoformat(b) - date.fromisoformat(a)).days for a, b in zip(moves, moves[1:])]
+        assert all(g >= 3 for g in gaps), gaps  # local days, not move slots
+
+
+def test_saltbush_may_reaches_the_proven_optimum(tmp_path, capsys):
+    """Saltbush Ridge, May 2027, 250-350 at 60 min, 4 moves: the integer program proves 80
+    optimal (an offline run of over 300 s); the default local search must find 80 too."""
+    doc = _month_json(tmp_path, capsys, "--site", "saltbush-ridge", "--month", "2027-05",
+                      "--want", "250-350", "--target-minutes", "60", "--max-moves", "4")
+    s = doc["summary"]
+    assert s["done_after"] >= 80 and s["moves"] <= 4 and s["upper_bound"] >= 80
+
+
+def test_tradeoff_table(tmp_path, capsys):
+    doc = _month_json(tmp_path, capsys, "--site", "hollowmere", "--start", "2027-03-01", "--days", "10",
+                      "--want", "120-140", "--tradeoff")
+    trade = doc["summary"]["tradeoff"]
+    assert [t["max_moves"] for t in trade] == [0, 1, 2, 4, 8, None]
+    for t in trade:
+        assert t["upper_bound"] >= t["bins"] and (t["max_moves"] is None or t["moves"] <= t["max_moves"])
+    bins = [t["bins"] for t in trade]
+    assert bins[-1] >= max(bins[:-1]) - 1  # more moves allowed is (near) never worse
+    from planner.brief import brief_markdown
+    assert "Moves at most" in brief_markdown(doc)
+
+
+def test_window_past_midnight_gives_its_own_day_the_slot(club):
+    """Saturday 21:00-02:00 and Sunday 09:00-12:00: Sunday's slot is 09:00, not 00:00."""
+    tz = club.tz
+    start, end = local_day_span(date(2027, 3, 6), 2, tz)  # Saturday and Sunday
+    windows = window_intervals_mjd(read_windows("Sat 21:00-02:00; Sun 09:00-12:00"), start, end, tz)
+    slots = move_slots(start, 2, tz, windows)
+    from planner.timebase import mjd_to_datetime_utc
+    local = [mjd_to_datetime_utc(s.mjd).astimezone(tz).strftime("%a %H:%M") for s in slots]
+    assert local == ["Sat 21:00", "Sun 09:00"]
+
+
+def test_start_given_as_altaz_is_kept(school):
+    """An alt-az dish whose [pointing] is alt/az starts there: no forced first move."""
+    from planner.cli.common import current_setting
+    start, end = local_day_span(date(2027, 5, 1), 5, school.tz)
+    current = current_setting(school)
+    result = sweep(school, candidate_pointings(school, extra=(current,)), start, end,
+                   per_occurrence=True)
+    row = next(i for i, r in enumerate(result.rows)
+               if abs(r.pointing.alt_deg - 60) < 1e-6 and abs(r.pointing.az_deg - 200) < 1e-6)
+    goal = Goal(parse_want("120-125"), 60.0, np.zeros(360))  # dec +60: never above its horizon
+    plan, report = best_plan(result, goal, move_slots(start, 5, school.tz), row,
+                             guard=sun_guard(result))
+    assert report.moves == 0 and plan.parkings[0].row == row
