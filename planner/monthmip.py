@@ -34,6 +34,7 @@ class ExactResult:
     optimal: bool
     seconds: float
     nodes: int = 0
+    timed_out: bool = False  # stopped by the time limit: a rerun may differ
 
 
 def _new_solver():
@@ -58,8 +59,21 @@ def _open_bins(m: SlotModel) -> np.ndarray:
     return np.flatnonzero(m.want & (m.done < m.target - 1e-9))
 
 
+# The exact mode's budget is counted in branch-and-bound nodes, not seconds, so the same
+# problem gives the same plan on every machine: about this many nodes a second after the
+# root, measured on the 2-core development machine (demo month, one thread). A time limit
+# of three times the budget plus a minute remains as a safety net only.
+NODES_PER_SECOND = 6.0
+
+
+def nodes_for(seconds: float) -> int:
+    """The node budget standing for ``seconds`` of search (``NODES_PER_SECOND``)."""
+    return max(1, int(np.ceil(seconds * NODES_PER_SECOND)))
+
+
 def solve_exact(m: SlotModel, start_rows: np.ndarray, seconds: float,
-                threads: int = 1, options: dict | None = None, relax: bool = False) -> ExactResult:
+                threads: int = 1, options: dict | None = None, relax: bool = False,
+                nodes: int | None = None) -> ExactResult:
     """Solve the month problem as a mixed-integer program with HiGHS (module docstring).
 
     Variables: x[r, q] the row held in interval q (q >= 1; interval 0 is the start
@@ -71,7 +85,9 @@ def solve_exact(m: SlotModel, start_rows: np.ndarray, seconds: float,
     Sun: x[r, q] = 0 where unsafe, and x[a, q-1] + sum of x[b, q] over the moves a -> b
     the Sun forbids <= 1. Rules: sum m <= max_moves; moves in any window of
     ``min_days`` days <= 1. Maximise sum w + progress share + move share (weights
-    above). Deterministic: one thread, fixed seed.
+    above). One thread and a fixed seed; with ``nodes`` the search stops after that
+    many nodes (the same result on every machine) and ``seconds`` is only a safety
+    net; without, it stops at ``seconds``.
     """
     import highspy
     started = time.perf_counter()
@@ -241,6 +257,8 @@ def solve_exact(m: SlotModel, start_rows: np.ndarray, seconds: float,
     solver = _new_solver()
     solver.setOptionValue("threads", int(threads))
     solver.setOptionValue("random_seed", 0)
+    if nodes is not None:
+        solver.setOptionValue("mip_max_nodes", int(nodes))
     for key, value in (options or {}).items():
         solver.setOptionValue(key, value)
     # A complete start: fix x to the known plan, let the solver fill the other columns
@@ -275,10 +293,13 @@ def solve_exact(m: SlotModel, start_rows: np.ndarray, seconds: float,
     worst_move = _MOVE_SHARE * w_share * len(move_cols)
     dual = info.objective_function_value if relax else info.mip_dual_bound
     bound = int(np.floor(dual + worst_move + 1e-6))
-    nodes = int(info.mip_node_count)
-    optimal = solver.getModelStatus() == highspy.HighsModelStatus.kOptimal
+    node_count = int(info.mip_node_count)
+    status = solver.getModelStatus()
+    optimal = status == highspy.HighsModelStatus.kOptimal
+    timed_out = status == highspy.HighsModelStatus.kTimeLimit
     return ExactResult(rows=rows, bound_bins=bound, optimal=optimal,
-                       seconds=time.perf_counter() - started, nodes=nodes)
+                       seconds=time.perf_counter() - started, nodes=node_count,
+                       timed_out=timed_out)
 
 
 def linear_bound(m: SlotModel) -> int:

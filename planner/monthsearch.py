@@ -26,7 +26,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .monthmip import linear_bound, solve_exact
+from .monthmip import linear_bound, nodes_for, solve_exact
 from .monthmodel import (Prefix, SlotModel, build_model, exact_depth, fast_depth, feasible,
                          parkings_of_rows, rows_of_plan, run_contrib, runs_of, score_of)
 
@@ -220,12 +220,16 @@ def optimize(m: SlotModel, greedy_rows: np.ndarray, exact_seconds: float | None 
             best_rows, best = improved, judged(improved)
         method = "greedy + local search"
     if exact_seconds:
-        exact = solve_exact(m, best_rows, exact_seconds)
+        # Budget in nodes (the same plan on every machine); time only as a safety net.
+        exact = solve_exact(m, best_rows, 3.0 * exact_seconds + 60.0,
+                            nodes=nodes_for(exact_seconds))
         if feasible(m, exact.rows) and judged(exact.rows).key > best.key:
             best_rows, best = exact.rows, judged(exact.rows)
         method += " + integer program"
         bound = exact.bound_bins
         source = "integer program (optimal)" if exact.optimal else "integer program"
+        if exact.timed_out:
+            method += " (stopped by its time limit: a rerun may differ)"
     else:
         bound, source = linear_bound(m), "linear relaxation"
     report = OptimizeReport(greedy_bins=greedy.bins, bins=best.bins, moves=best.moves,

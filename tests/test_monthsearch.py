@@ -207,3 +207,17 @@ def test_start_given_as_altaz_is_kept(school):
     plan, report = best_plan(result, goal, move_slots(start, 5, school.tz), row,
                              guard=sun_guard(result))
     assert report.moves == 0 and plan.parkings[0].row == row
+
+
+def test_optimize_option_proves_a_small_plan_and_repeats(tmp_path, capsys):
+    """--optimize on a week: the integer program proves the plan optimal; its budget is
+    counted in solver nodes, so a second run gives the same plan."""
+    argv = ("--site", "saltbush-ridge", "--start", "2027-05-01", "--days", "8", "--want", "250-350",
+            "--target-minutes", "60", "--max-moves", "2", "--optimize", "5")
+    a = _month_json(tmp_path, capsys, *argv)
+    opt = a["summary"]["optimizer"]
+    assert opt["bound_source"] == "integer program (optimal)"
+    assert a["summary"]["upper_bound"] == a["summary"]["done_after"] == opt["bins"]
+    (tmp_path / "again").mkdir()
+    b = _month_json(tmp_path / "again", capsys, *argv)
+    assert [d["park"] for d in a["days"]] == [d["park"] for d in b["days"]]

@@ -54,8 +54,9 @@ def add_arguments(p) -> None:
                    help="move the dish at most N times in the period (default: no limit; an "
                         "unknown start setting makes the first setting a move)")
     p.add_argument("--optimize", type=number(float, "--optimize", 0, 3600), metavar="SECONDS",
-                   help="also run the exact integer program (HiGHS) for up to SECONDS, from the "
-                        "improved plan: a better plan or a proof, and a tighter bound")
+                   help="also run the exact integer program (HiGHS) from the improved plan for "
+                        "about SECONDS of search (counted in solver nodes, so every machine gets "
+                        "the same plan): a better plan or a proof, and a tighter bound")
     p.add_argument("--tradeoff", action="store_true",
                    help="also plan with at most 0, 1, 2, 4, 8 and any number of moves and show "
                         "the wanted bins each reaches (a table, in JSON and in the brief)")
