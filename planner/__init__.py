@@ -1,7 +1,7 @@
 """hiplan: plan 21-cm HI observations for small radio telescopes.
 
-Importing the package configures astropy for offline use (see ``timebase``).
+Importing the package imports nothing heavy: astropy is loaded, and set offline,
+only when a computation needs it (``timebase.astropy_offline``).
 """
-from . import timebase as _timebase  # noqa: F401  (side effect: offline IERS)
 
 __version__ = "0.1.0"

@@ -101,6 +101,7 @@ class Sweep:
     night_only: bool
     rows: list[DeclinationCoverage]
     night_sun_alt_deg: float = 0.0  # night: the Sun's centre below this altitude
+    nodes: object = None  # the EarthNodes used (reusable by later computations on the period)
 
     @property
     def bin_starts_deg(self) -> np.ndarray:
@@ -140,9 +141,7 @@ def _templates(beam: FixedBeams, epoch_mjd: float, b_max: float, step_s: float,
     step = step_s / SECONDS_PER_DAY
     grid = epoch_mjd + np.arange(int(np.ceil(_TEMPLATE_SPAN_DAYS / step)) + 1) * step
     m = grid.size
-    t_all = np.tile(grid, n_rows)
-    r_all = np.repeat(np.arange(n_rows), m)
-    in_strip = (np.abs(beam.b_deg(t_all, r_all)) <= b_max).reshape(n_rows, m)
+    in_strip = np.abs(beam.b_deg_grid(grid)) <= b_max  # (rows, samples), one Earth state
 
     # Run starts/ends per row; a run touching the grid's first sample is a repeat of one
     # that starts a sidereal day later, and a run must start within the first sidereal day.
@@ -261,7 +260,7 @@ def sweep(site: Site, pointings: list[Pointing], start_mjd: float, end_mjd: floa
 
     result = _assemble(site, pointings, parts, total, usable_s, in_band_s, in_window_s,
                        start_mjd, end_mjd, b_max, bw, night_only, window_intervals is not None)
-    return replace(result, night_sun_alt_deg=float(night_sun_alt_deg))
+    return replace(result, night_sun_alt_deg=float(night_sun_alt_deg), nodes=beam.nodes)
 
 
 def check_work(n_rows: int, days: float, n_bins: int, step_s: float = 120.0,

@@ -57,7 +57,6 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
-import astropy.units as u
 import erfa
 import numpy as np
 
@@ -169,6 +168,7 @@ def lsr_correction(site, coord, times, solar_motion: str = "standard"):
     mjd = np.broadcast_to(to_mjd_utc(times).reshape(np.shape(times)), shape).ravel()
     corr = velocity_corrections(site.latitude_deg, site.longitude_deg, site.height_m,
                                 ra_deg, dec_deg, mjd, solar_motion=solar_motion)
+    import astropy.units as u  # the astropy boundary; imported on use (fast start-up)
     return corr.lsr_corr_kms.reshape(shape) * (u.km / u.s)
 
 

@@ -150,7 +150,7 @@ class Prefix:
 
 
 def run_contrib(p: Prefix, r, i, j, fresh) -> np.ndarray:
-    """Minutes per bin from runs of rows ``r`` over intervals [i, j) (arrays broadcast, (N, B)).
+    """Minutes per bin from runs of rows ``r`` over intervals [i, j) (arrays broadcast, (..., B)).
 
     Passages inside the run's intervals and across its inner slot edges; a run that
     starts with a move (``fresh``) loses the ones that begin before the move ends.
@@ -161,10 +161,10 @@ def run_contrib(p: Prefix, r, i, j, fresh) -> np.ndarray:
     rr = np.where(valid, r, 0)
     inner = np.maximum(j - 1, i)
     out = (p.hold[rr, j] - p.hold[rr, i] + p.span[rr, inner] - p.span[rr, i]
-           - fresh[:, None] * (p.early_hold[rr, np.minimum(i, p.early_hold.shape[1] - 1)]
-                               + ((j - i) >= 2)[:, None]
-                               * p.early_span[rr, np.minimum(i, p.early_span.shape[1] - 1)]))
-    return np.where(valid[:, None], out, 0.0)
+           - fresh[..., None] * (p.early_hold[rr, np.minimum(i, p.early_hold.shape[1] - 1)]
+                                 + ((j - i) >= 2)[..., None]
+                                 * p.early_span[rr, np.minimum(i, p.early_span.shape[1] - 1)]))
+    return np.where(valid[..., None], out, 0.0)
 
 
 def fast_depth(m: SlotModel, p: Prefix, rows: np.ndarray) -> np.ndarray:

@@ -96,5 +96,5 @@ def sun_guard(sweep, enforce: bool = True) -> SunGuard:
     """The feed-safety constraints for planning over ``sweep`` (a ``coverage.Sweep``)."""
     site = sweep.site
     pointings = [r.pointing for r in sweep.rows]
-    approaches = sun_approaches(site, pointings, sweep.start_mjd, sweep.end_mjd)
+    approaches = sun_approaches(site, pointings, sweep.start_mjd, sweep.end_mjd, nodes=sweep.nodes)
     return SunGuard(site, pointings, approaches, site.rules.sun_hazard_deg, enforce)

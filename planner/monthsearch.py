@@ -22,7 +22,7 @@ from __future__ import annotations
 
 import itertools
 import time
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import numpy as np
 
@@ -46,7 +46,7 @@ def _better(bins, progress, moves, best) -> np.ndarray:
 
 def _scores(m: SlotModel, depth: np.ndarray):
     """(bins at target, capped progress) of candidate depths (..., B)."""
-    want = depth[..., m.want]
+    want = depth if m.want.all() else depth[..., m.want]
     return (np.count_nonzero(want >= m.target - 1e-9, axis=-1),
             (np.minimum(want, m.target) / m.target).sum(axis=-1))
 
@@ -59,30 +59,56 @@ _ALL_PAIRS_UP_TO = 8
 _PERMUTE_UP_TO = 6
 
 
+def _wanted_only(m: SlotModel) -> SlotModel:
+    """The model restricted to the wanted bins (the only ones the objective reads)."""
+    keep = np.flatnonzero(m.want)
+    return replace(m, hold=m.hold[:, :, keep], fresh=m.fresh[:, :, keep],
+                   span=m.span[:, :, keep], span_late=m.span_late[:, :, keep],
+                   multi=tuple((r, a, c, late, minutes[keep]) for r, a, c, late, minutes in m.multi),
+                   want=np.ones(keep.size, bool), done=m.done[keep])
+
+
+def _applied(rows: np.ndarray, assign) -> np.ndarray:
+    """A copy of ``rows`` with each (i, j, row) of ``assign`` written to [i, j)."""
+    trial = rows.copy()
+    for i, j, r in assign:
+        trial[i:j] = r
+    return trial
+
+
 def _polish_moves(m: SlotModel, p: Prefix, rows: np.ndarray) -> np.ndarray:
     """Each move shifted to its best slot between its neighbours (fast score), repeated
-    until none moves: coordinate ascent over the move slots, the rows' order kept."""
+    until none moves: coordinate ascent over the move slots, the rows' order kept.
+
+    For one move, every slot between its neighbours is scored at once: only the two
+    runs it separates change, each a prefix-sum difference (``run_contrib``).
+    """
     rows = rows.copy()
     best = score_of(m, fast_depth(m, p, rows), rows).key
     changed = True
     while changed:  # a few sweeps
         changed = False
-        runs = runs_of(rows)
-        for k in range(1, len(runs)):
-            if runs[k - 1][0] < 0 and runs[k - 1][1] == 0 and runs[k - 1][2] == 1:
-                continue  # the first setting after an unknown start: at the first slot
-            lo, hi = runs[k - 1][1] + 1, runs[k][2] - 1
-            left, right = runs[k - 1][0], runs[k][0]
-            for q in range(lo, hi + 1):  # every slot between the neighbours
-                trial = rows.copy()
-                trial[lo - 1 + 1:q] = left
-                trial[q:hi + 1] = right
-                key = score_of(m, fast_depth(m, p, trial), trial).key
-                if key > best:
-                    rows, best, changed = trial, key, True
+        k = 1
+        while k < len(runs_of(rows)):
             runs = runs_of(rows)
-            if len(runs) <= k:
-                break
+            (left, l0, _), (right, _, r1) = runs[k - 1], runs[k]
+            if left < 0:  # the first setting after an unknown start: at the first slot
+                k += 1
+                continue
+            depth = fast_depth(m, p, rows)
+            base = (depth - run_contrib(p, [left], [l0], [runs[k - 1][2]], [l0 >= 1])[0]
+                    - run_contrib(p, [right], [runs[k][1]], [r1], [True])[0])
+            q = np.arange(l0 + 1, r1)  # the move's slot: left keeps [l0, q), right [q, r1)
+            cand = (base[None, :] + run_contrib(p, np.full(q.size, left), np.full(q.size, l0), q,
+                                                np.full(q.size, l0 >= 1))
+                    + run_contrib(p, np.full(q.size, right), q, np.full(q.size, r1), True))
+            bins, progress = _scores(m, cand)
+            keys = [(int(b), round(float(g), 6), best[2]) for b, g in zip(bins, progress)]
+            pick = max(range(q.size), key=lambda i: (keys[i], -abs(q[i] - runs[k][1])))
+            if keys[pick] > best:
+                rows[l0:q[pick]], rows[q[pick]:r1] = left, right
+                best, changed = keys[pick], True
+            k += 1
     return rows
 
 
@@ -93,6 +119,7 @@ def improve(m: SlotModel, rows: np.ndarray, max_rounds: int = MAX_ROUNDS) -> np.
     at once (this includes swapping them). Each round applies the best candidate, by
     its exact re-count, that obeys every rule.
     """
+    m = _wanted_only(m)  # the objective reads wanted bins only: 2-3 times less to add up
     p = Prefix(m)
     rows = rows.copy()
     best = score_of(m, exact_depth(m, p, rows), rows)
@@ -104,29 +131,47 @@ def improve(m: SlotModel, rows: np.ndarray, max_rounds: int = MAX_ROUNDS) -> np.
         run_at = np.repeat(np.arange(len(runs)), [j - i for _, i, j in runs])
         contrib = [run_contrib(p, [r], [i], [j], [i >= 1])[0] for r, i, j in runs]
         moves_now = score_of(m, depth, rows).moves
+        # The run after j, cut to start at j with a move there (for every j at once).
+        right_part = {}
+        for j in range(1, n_q):
+            c, _, rc_end = runs[run_at[j]]
+            right_part[j] = run_contrib(p, c, j, rc_end, True)
         candidates = []  # (key, assignments ((i, j, row), ...)) of improving candidates
-        for i in range(1, n_q):  # (a) every run of intervals [i, j)
+        # (a) every run of intervals [i, j) to every row: for each i, all j and rows at
+        # once, (j, row, bin) arrays. The runs around [i, j) are recomposed: the run
+        # before i keeps [its start, i) (or absorbs the new run if it has its row), the
+        # run holding j restarts at j with a move (or absorbs it likewise).
+        cum_contrib = np.concatenate([np.zeros((1, depth.size)), np.cumsum(contrib, axis=0)])
+        j_all = np.arange(2, n_q + 1)
+        has_right = j_all < n_q
+        right_run = np.where(has_right, run_at[np.minimum(j_all, n_q - 1)], len(runs) - 1)
+        c_of = np.where(has_right, [runs[k][0] for k in right_run], -2)
+        rc_end_of = np.where(has_right, [runs[k][2] for k in right_run], n_q)
+        right_parts = np.stack([right_part[j] if j < n_q else np.zeros_like(depth)
+                                for j in j_all])  # (J, B)
+        for i in range(1, n_q):
             left = run_at[i - 1]
             a, la, _ = runs[left]
-            for j in range(i + 1, n_q + 1):
-                right = run_at[j] if j < n_q else None
-                last = right if right is not None else len(runs) - 1
-                old = sum(contrib[left:last + 1])
-                inner_moves = sum(1 for x in runs[left + 1:last + 1] if x[1] >= 1)
-                c, _, rc_end = runs[right] if right is not None else (-2, n_q, n_q)
-                same_a, same_c = all_rows == a, all_rows == c
-                mid_start = np.where(same_a, la, i)
-                mid_end = np.where(same_c, rc_end, j)
-                mid_fresh = np.where(same_a, la >= 1, True)
-                new = run_contrib(p, all_rows, mid_start, mid_end, mid_fresh)
-                new += np.where(same_a[:, None], 0.0, run_contrib(p, [a], [la], [i], [la >= 1]))
-                if right is not None:
-                    new += np.where(same_c[:, None], 0.0, run_contrib(p, [c], [j], [rc_end], [True]))
-                bins, progress = _scores(m, depth[None, :] - old[None, :] + new)
-                moves = (moves_now - inner_moves + (~same_a) + ((~same_c) & (right is not None)))
-                for r in np.flatnonzero(_better(bins, progress, moves, best)):
-                    candidates.append(((int(bins[r]), round(float(progress[r]), 6), -int(moves[r])),
-                                       ((i, j, int(r)),)))
+            left_part = run_contrib(p, a, la, i, la >= 1)
+            js = slice(i - 1, None)  # j = i + 1 .. n_q
+            j, last, c, rc_end = j_all[js], right_run[js], c_of[js], rc_end_of[js]
+            old = cum_contrib[last + 1] - cum_contrib[left]  # (J, B)
+            inner_moves = last - left  # every run after the left one starts with a move
+            same_a = all_rows == a  # (R,)
+            same_c = all_rows[None, :] == c[:, None]  # (J, R)
+            mid_start = np.where(same_a, la, i)[None, :]
+            mid_end = np.where(same_c, rc_end[:, None], j[:, None])
+            mid_fresh = np.where(same_a, la >= 1, True)[None, :]
+            new = run_contrib(p, all_rows[None, :], mid_start, mid_end, mid_fresh)  # (J, R, B)
+            new += np.where(same_a[None, :, None], 0.0, left_part)
+            new += np.where(same_c[:, :, None] | ~has_right[js, None, None], 0.0,
+                            right_parts[js][:, None, :])
+            bins, progress = _scores(m, (depth - old)[:, None, :] + new)
+            moves = (moves_now - inner_moves[:, None] + (~same_a)[None, :]
+                     + ((~same_c) & has_right[js, None]))
+            for jj, r in zip(*np.nonzero(_better(bins, progress, moves, best))):
+                candidates.append(((int(bins[jj, r]), round(float(progress[jj, r]), 6),
+                                    -int(moves[jj, r])), ((i, int(j[jj]), int(r)),)))
         # (b) two parkings at once; merges with neighbours are ignored in this fast score.
         parks = [k for k in range(len(runs)) if runs[k][1] >= 1]
         own = {k: run_contrib(p, all_rows, runs[k][1], runs[k][2], True) for k in parks}
@@ -146,8 +191,9 @@ def improve(m: SlotModel, rows: np.ndarray, max_rounds: int = MAX_ROUNDS) -> np.
                                         (runs[k2][1], runs[k2][2], int(r2)))))
         # (c) the parkings' rows in another order, each order with its move days polished
         # (every order, for up to 6 parkings): a different order usually wants the moves
-        # a day or two earlier or later.
-        if 2 < len(parks) <= _PERMUTE_UP_TO:
+        # a day or two earlier or later. Tried only when (a) and (b) find nothing.
+        if 2 < len(parks) <= _PERMUTE_UP_TO and not any(
+                feasible(m, _applied(rows, assign)) for _, assign in candidates):
             for order in itertools.permutations(range(len(parks))):
                 if list(order) == sorted(order):
                     continue
@@ -161,9 +207,7 @@ def improve(m: SlotModel, rows: np.ndarray, max_rounds: int = MAX_ROUNDS) -> np.
         accepted = False
         for key, assign in sorted(candidates, key=lambda c: (c[0], [(-i, -j, -r) for i, j, r in c[1]]),
                                   reverse=True):
-            trial = rows.copy()
-            for i, j, r in assign:
-                trial[i:j] = r
+            trial = _applied(rows, assign)
             if not feasible(m, trial):
                 continue
             score = score_of(m, exact_depth(m, p, trial), trial)
@@ -191,9 +235,10 @@ class OptimizeReport:
     seconds: float
 
     def record(self) -> dict:
+        """For the plan document (no run time: a plan file is the same on every run)."""
         return {"method": self.method, "greedy_bins": self.greedy_bins, "bins": self.bins,
                 "moves": self.moves, "upper_bound": self.upper_bound,
-                "bound_source": self.bound_source, "seconds": round(self.seconds, 2)}
+                "bound_source": self.bound_source}
 
 
 def optimize(m: SlotModel, greedy_rows: np.ndarray, exact_seconds: float | None = None,

@@ -24,7 +24,6 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
-from astropy.time import Time
 
 from .avoidance import moon_direction, separation_deg, sun_altitude_deg, sun_direction
 from .doppler import velocity_corrections
@@ -33,7 +32,7 @@ from .galactic import ICRS_TO_GALACTIC
 from .pointing import Pointing
 from .site import Site
 from .skytrack import FixedBeams
-from .timebase import SECONDS_PER_DAY, to_mjd_utc
+from .timebase import SECONDS_PER_DAY, from_mjd_utc, to_mjd_utc
 
 SIDEREAL_RATE_DEG_PER_S = 360.0 / 86164.0905
 _GOLDEN = (np.sqrt(5.0) - 1.0) / 2.0
@@ -69,16 +68,17 @@ class Passage:
         return (self.end_mjd - self.start_mjd) * 1440.0
 
     @property
-    def start(self) -> Time:
-        return Time(self.start_mjd, format="mjd", scale="utc")
+    def start(self):
+        """Band entry as an astropy ``Time`` (UTC)."""
+        return from_mjd_utc(self.start_mjd)
 
     @property
-    def end(self) -> Time:
-        return Time(self.end_mjd, format="mjd", scale="utc")
+    def end(self):
+        return from_mjd_utc(self.end_mjd)
 
     @property
-    def peak(self) -> Time:
-        return Time(self.peak_mjd, format="mjd", scale="utc")
+    def peak(self):
+        return from_mjd_utc(self.peak_mjd)
 
 
 @dataclass(frozen=True)
@@ -262,7 +262,7 @@ def _tidy(value: float) -> float | int:
     return int(value) if float(value).is_integer() else float(value)
 
 
-def find_passages(site: Site, pointing: Pointing, start: Time, end: Time,
+def find_passages(site: Site, pointing: Pointing, start, end,
                   b_max_deg: float | None = None, solar_motion: str = "standard") -> PassageSearch:
     """Passages of ``pointing`` between two astropy Times (b_max in degrees)."""
     return search_passages_mjd(site, pointing, float(to_mjd_utc(start)[0]),

@@ -19,14 +19,13 @@ from dataclasses import dataclass
 
 import erfa
 import numpy as np
-from astropy.time import Time
 
 from .earth import (EarthNodes, EarthState, cirs_to_gcrs, earth_state, gcrs_to_cirs,
                     site_gcrs_velocity_kms, site_itrs_m, spherical_deg, unit_vectors)
 from .galactic import ICRS_TO_GALACTIC
 from .pointing import Pointing
 from .site import SPEED_OF_LIGHT_KMS, Site
-from .timebase import to_mjd_utc
+from .timebase import from_mjd_utc, to_mjd_utc
 
 
 @dataclass(frozen=True)
@@ -40,8 +39,9 @@ class BeamTrack:
     b_deg: np.ndarray
 
     @property
-    def times(self) -> Time:
-        return Time(self.mjd_utc, format="mjd", scale="utc")
+    def times(self):
+        """The sample times as an astropy ``Time`` (UTC)."""
+        return from_mjd_utc(self.mjd_utc)
 
 
 def site_xyz_m(site: Site) -> np.ndarray:
@@ -102,6 +102,23 @@ class FixedBeams:
         state = earth_state(np.asarray(mjd_utc, dtype=float), self.nodes)
         return state, fixed_pointing_icrs(self.site, self.ha_deg[row], self.dec_deg[row], state)
 
+    def b_deg_grid(self, mjd_utc) -> np.ndarray:
+        """Galactic latitude (deg) of every pointing at every time: (rows, times).
+
+        The Earth state is computed once for the times and shared by all rows (the
+        same arithmetic as ``b_deg`` on each (time, row) pair).
+        """
+        state = earth_state(np.asarray(mjd_utc, dtype=float), self.nodes)
+        beta = _observer_beta(self.site, state)
+        ra_cirs_deg = (np.degrees(state.era_rad)[None, :] + self.site.longitude_deg
+                       - self.ha_deg[:, None])
+        cirs = unit_vectors(ra_cirs_deg, self.dec_deg[:, None])
+        apparent = np.einsum("mji,rmj->rmi", state.c2i, cirs)
+        dot = np.einsum("rmi,mi->rm", apparent, beta)[..., None]
+        vec = _normalise(apparent - beta[None] + dot * apparent)
+        z = vec @ ICRS_TO_GALACTIC[2]
+        return np.degrees(np.arcsin(np.clip(z, -1.0, 1.0)))
+
     def b_deg(self, mjd_utc, row=0) -> np.ndarray:
         """Galactic latitude (deg) of the beam centre."""
         z = self.locate(mjd_utc, row)[1] @ ICRS_TO_GALACTIC[2]
@@ -117,6 +134,6 @@ def track_mjd(site: Site, pointing: Pointing, mjd_utc, nodes: EarthNodes | None 
     return BeamTrack(mjd_utc=state.mjd_utc, ra_deg=ra, dec_deg=dec, l_deg=l, b_deg=b)
 
 
-def beam_track(site: Site, pointing: Pointing, times: Time) -> BeamTrack:
+def beam_track(site: Site, pointing: Pointing, times) -> BeamTrack:
     """Beam-centre track of a fixed pointing at ``times`` (any astropy time scale)."""
     return track_mjd(site, pointing, to_mjd_utc(times))

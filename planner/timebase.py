@@ -6,8 +6,10 @@ float64 Modified Julian Dates in UTC (``mjd_utc``, days; float64 resolves
 boundaries. Local time exists only for display and for parsing dates a person
 types, via ``zoneinfo``.
 
-Offline: astropy is told never to download. Earth-orientation data come from
-the bundled ``astropy-iers-data`` tables; past their end UT1-UTC is held at the
+Offline: astropy is told never to download, the first time hiplan uses it
+(``astropy_offline``; importing hiplan does not import astropy, so commands
+start fast). Earth-orientation data come from the installed ``astropy-iers-data``
+files, read directly (``eop``); past their end UT1-UTC is held at the
 last tabulated value and one note is logged (|UT1-UTC| < 0.9 s moves a sky
 position by < 14 arcsec, far below any small-dish beam); before their start it
 is held at the first value, with one note too. ERFA's "dubious year" warnings
@@ -38,10 +40,8 @@ from zoneinfo import ZoneInfo
 
 import erfa
 import numpy as np
-from astropy.time import Time
-from astropy.utils import iers
-from astropy.utils.data import conf as data_conf
 
+from .eop import ut1_minus_utc_table
 from .errors import UserError
 
 log = logging.getLogger(__name__)
@@ -49,6 +49,7 @@ log = logging.getLogger(__name__)
 MJD_ZERO_JD = 2400000.5
 SECONDS_PER_DAY = 86400.0
 UNIX_EPOCH_MJD = 40587.0  # MJD of 1970-01-01 00:00 UTC
+TT_MINUS_TAI_S = 32.184  # IAU 1991 definition of TT
 _UNIX_EPOCH = datetime(1970, 1, 1, tzinfo=timezone.utc)
 _MJD_EPOCH_DAY = date(1858, 11, 17)  # MJD 0
 
@@ -64,6 +65,8 @@ SUPPORTED_TEXT = f"{FIRST_DAY} to {LAST_DAY}, within the 1900-2100 range of its 
 
 def configure_offline() -> None:
     """Forbid every astropy download and use the bundled IERS tables only."""
+    from astropy.utils import iers
+    from astropy.utils.data import conf as data_conf
     data_conf.allow_internet = False
     iers.conf.auto_download = False
     iers.conf.auto_max_age = None
@@ -75,7 +78,25 @@ def configure_offline() -> None:
     warnings.filterwarnings("ignore", message=r".*dubious year", category=erfa.ErfaWarning)
 
 
-configure_offline()
+_offline = False
+
+
+def astropy_offline():
+    """The ``astropy.time`` module, astropy set offline first (once per process).
+
+    Every hiplan module that needs astropy gets it through here, so no hiplan
+    code path can make astropy download anything.
+    """
+    global _offline
+    if not _offline:
+        configure_offline()
+        _offline = True
+    import astropy.time
+    return astropy.time
+
+
+# ERFA's "dubious year" warnings are ours to handle from the start (module doc).
+warnings.filterwarnings("ignore", message=r".*dubious year", category=erfa.ErfaWarning)
 
 _warned_past_table = False
 _warned_before_table = False
@@ -88,12 +109,22 @@ def _eop_arrays() -> tuple[np.ndarray, np.ndarray]:
     """(MJD, UT1-UTC seconds) from the bundled table, read once per process."""
     global _eop_cache
     if _eop_cache is None:
-        table = iers.earth_orientation_table.get()
-        mjd = np.asarray(table["MJD"].value, dtype=float)
-        dut = np.asarray(table["UT1_UTC"].to_value("s"), dtype=float)
-        keep = np.isfinite(dut)
-        _eop_cache = (mjd[keep], dut[keep])
+        _eop_cache = ut1_minus_utc_table()
     return _eop_cache
+
+
+_ut1_tai_cache: tuple[np.ndarray, np.ndarray] | None = None
+
+
+def _ut1_minus_tai() -> tuple[np.ndarray, np.ndarray]:
+    """UT1-TAI (s) at the table's days (smooth across leap seconds, so it interpolates),
+    and per table interval whether TAI-UTC changes in it (a leap second)."""
+    global _ut1_tai_cache
+    if _ut1_tai_cache is None:
+        mjd, dut = _eop_arrays()
+        tai_utc = tt_minus_utc_s(mjd) - TT_MINUS_TAI_S
+        _ut1_tai_cache = (dut - tai_utc, np.diff(tai_utc) != 0.0)
+    return _ut1_tai_cache
 
 
 def iers_table_end_mjd() -> float:
@@ -122,35 +153,62 @@ def dut1_s(mjd_utc: np.ndarray) -> np.ndarray:
             _day_text(mjd_tab[-1]),
             dut_tab[-1],
         )
-    # A leap second makes UT1-UTC jump by 1 s and linear interpolation smears
-    # that jump over one day: harmless here (no leap second since 2017, and
-    # 1 s of UT1 is 15 arcsec of sky).
-    return np.interp(mjd, mjd_tab, dut_tab)
+    # UT1-UTC jumps by 1 s at a leap second; UT1-TAI does not. Between table days
+    # with a leap second in between, UT1-TAI is interpolated (as astropy does) and
+    # TAI-UTC of the instant added back; elsewhere UT1-UTC itself interpolates.
+    out = np.interp(mjd, mjd_tab, dut_tab)
+    ut1_tai, leaps = _ut1_minus_tai()
+    j = np.clip(np.searchsorted(mjd_tab, mjd, side="right") - 1, 0, mjd_tab.size - 2)
+    near_leap = leaps[j] & (mjd > mjd_tab[0]) & (mjd < mjd_tab[-1])
+    if np.any(near_leap):
+        t = mjd[near_leap]
+        out = np.array(out, dtype=float)
+        out[near_leap] = np.interp(t, mjd_tab, ut1_tai) + tt_minus_utc_s(t) - TT_MINUS_TAI_S
+    return out
 
 
 def _day_text(mjd_utc: float) -> str:
     return (_MJD_EPOCH_DAY + timedelta(days=math.floor(mjd_utc))).isoformat()
 
 
-def tt_minus_utc_s(mjd_utc: np.ndarray) -> np.ndarray:
-    """TT-UTC in seconds (leap seconds from ERFA's table + 32.184 s)."""
-    mjd = np.asarray(mjd_utc, dtype=float)
+# From 1972 TAI-UTC is a whole number of seconds that changes only at 0h UTC, so one
+# ERFA look-up per day serves every instant of that day (a large saving for long
+# arrays); before, it drifted within the day and every instant is looked up.
+_WHOLE_SECONDS_FROM_MJD = 41317.0  # 1972-01-01
+
+
+def _dat(mjd: np.ndarray) -> np.ndarray:
     iy, im, iday, frac = erfa.jd2cal(MJD_ZERO_JD, mjd)
     with warnings.catch_warnings():
         # ERFA flags years past its leap-second table as "dubious"; the last
         # known count is the best prediction and 1 s is 15 arcsec of sky.
         warnings.simplefilter("ignore", erfa.ErfaWarning)
-        return erfa.dat(iy, im, iday, frac) + 32.184
+        return erfa.dat(iy, im, iday, frac)
 
 
-def to_mjd_utc(times: Time) -> np.ndarray:
+def tt_minus_utc_s(mjd_utc: np.ndarray) -> np.ndarray:
+    """TT-UTC in seconds (leap seconds from ERFA's table + 32.184 s)."""
+    mjd = np.asarray(mjd_utc, dtype=float)
+    flat = mjd.ravel()
+    if flat.size < 64:
+        return _dat(mjd) + TT_MINUS_TAI_S
+    out = np.empty(flat.size)
+    modern = flat >= _WHOLE_SECONDS_FROM_MJD
+    days, back = np.unique(np.floor(flat[modern]), return_inverse=True)
+    out[modern] = _dat(days)[back]
+    out[~modern] = _dat(flat[~modern])
+    return (out + TT_MINUS_TAI_S).reshape(mjd.shape)
+
+
+def to_mjd_utc(times) -> np.ndarray:
     """Float MJD (UTC) array from an astropy Time of any scale."""
+    astropy_offline()  # a conversion from UT1 may need the Earth-orientation table
     return np.atleast_1d(np.asarray(times.utc.mjd, dtype=float))
 
 
-def from_mjd_utc(mjd_utc) -> Time:
+def from_mjd_utc(mjd_utc):
     """astropy Time (UTC) from float MJD."""
-    return Time(np.asarray(mjd_utc, dtype=float), format="mjd", scale="utc")
+    return astropy_offline().Time(np.asarray(mjd_utc, dtype=float), format="mjd", scale="utc")
 
 
 def leap_seconds(day_mjd) -> np.ndarray:

@@ -4,7 +4,11 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-import planner  # noqa: F401  (configures astropy offline before any test runs)
+from planner.timebase import astropy_offline
+
+# The tests use astropy directly as the outside reference: set it offline first, as
+# hiplan does before its own first use of astropy.
+astropy_offline()
 from planner.site import load_site
 
 

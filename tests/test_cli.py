@@ -444,3 +444,12 @@ def test_inputs_with_a_byte_order_mark(tmp_path, capsys, small_plan):
     targets = bom(ROOT / "examples" / "targets.csv", "targets.csv")
     assert run(capsys, "survey", "--site", "saltbush-ridge", "--targets", targets,
                "--start", "2027-03-01", "--days", "1")[0] == 0
+
+
+def test_parser_constants_agree_with_the_planner():
+    """Repeated in cli.common so the parser loads no computation; they must not drift."""
+    from planner.cli import common
+    from planner.ical import MAX_ALARM_MINUTES
+    from planner.park import DEFAULT_TARGET_MINUTES
+    assert common.DEFAULT_TARGET_MINUTES == DEFAULT_TARGET_MINUTES
+    assert common.MAX_ALARM_MINUTES == MAX_ALARM_MINUTES

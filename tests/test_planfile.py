@@ -17,7 +17,7 @@ from planner.cli import main
 from planner.cli.demo import steps
 from planner.galaxy import model_from_name
 from planner.planfile import SESSION_GAP_MIN, read_plan, shown_span, survey_sessions
-from planner.report import month_renderable
+from planner.render import month_renderable
 from planner.tuning import line_setup
 
 UTC = timezone.utc

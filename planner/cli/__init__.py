@@ -10,12 +10,10 @@ import argparse
 import logging
 import sys
 
-from rich.console import Console
-
 from .. import __version__
 from ..errors import UserError
 from . import brief, calendar, crossings, demo, lsr, month, park, planlog, sites, survey, tune
-from .common import Parser
+from .common import Parser, TerminalConsole
 
 COMMAND_MODULES = (demo, park, month, survey, calendar, brief, planlog, crossings, lsr, tune, sites)
 COMMANDS = {m.NAME: m.run for m in COMMAND_MODULES}
@@ -33,9 +31,7 @@ def build_parser() -> argparse.ArgumentParser:
 
 def main(argv: list[str] | None = None) -> int:
     """Entry point of the ``hiplan`` console script; returns the exit status."""
-    # Piped output gets a fixed width so tables are not squeezed to 80 columns.
-    console = Console() if sys.stdout.isatty() else Console(width=120)
-    err = Console(stderr=True)
+    console = TerminalConsole()
     try:
         parser = build_parser()
         args = parser.parse_args(argv)
@@ -48,8 +44,9 @@ def main(argv: list[str] | None = None) -> int:
     except UserError as exc:
         # One line, whatever the message carries (e.g. a newline typed into an option).
         line = " ".join(str(exc).split("\n"))
-        err.print(f"hiplan: error: {line}", markup=False, highlight=False, soft_wrap=True)
+        sys.stdout.flush()
+        sys.stderr.write(f"hiplan: error: {line}\n")
         return 2
     except KeyboardInterrupt:
-        err.print("hiplan: interrupted", markup=False)
+        sys.stderr.write("hiplan: interrupted\n")
         return 130

@@ -1,20 +1,13 @@
 """``hiplan brief``: a printable operator brief (HTML or Markdown) from a plan file."""
 from __future__ import annotations
 
-import io
 import sys
 from pathlib import Path
 
-from rich.console import Console
 
-from ..brief import (
-    brief_html,
-    brief_markdown,
-)
 from ..errors import UserError
-from ..planfile import read_plan as read_plan_file
 from ..outputs import write_all
-from .common import check_outputs
+from .common import check_outputs, plan_chart_bytes
 
 NAME = "brief"
 HELP = "a printable operator brief (HTML or Markdown) from a plan file"
@@ -24,7 +17,6 @@ HTML_SUFFIXES = (".html", ".htm")
 # Chart functions of planner.plots drawn for each plan kind, with their names in the brief.
 CHARTS = {"drift": (("month", "month_chart"), ("depth", "depth_chart")),
           "survey": (("survey", "survey_chart"), ("sky", "survey_sky"))}
-CHART_DPI = 110
 
 
 def add_arguments(p) -> None:
@@ -48,6 +40,7 @@ def add_arguments(p) -> None:
 
 def read_plan(path: Path) -> dict:
     """Read a plan file: ``planfile.read_plan`` (one-line errors naming the file)."""
+    from ..planfile import read_plan as read_plan_file
     return read_plan_file(path)
 
 
@@ -81,30 +74,17 @@ def chart_pngs(doc: dict) -> dict[str, bytes]:
         from .. import plots
     except ImportError:
         return {}
-    pngs = {}
-    for key, func_name in CHARTS.get(doc.get("kind"), ()):
-        func = getattr(plots, func_name, None)
-        if func is None:
-            continue
-        fig = func(doc)
-        buffer = io.BytesIO()
-        fig.savefig(buffer, format="png", dpi=CHART_DPI)
-        _close(fig)
-        pngs[key] = buffer.getvalue()
-    return pngs
-
-
-def _close(fig) -> None:
-    # Figures made through pyplot stay registered until closed; plain Figures need nothing.
-    import matplotlib.pyplot as plt
-    plt.close(fig)
+    return {key: plan_chart_bytes(doc, func_name) for key, func_name in CHARTS.get(doc.get("kind"), ())
+            if getattr(plots, func_name, None) is not None}
 
 
 def chart_path(output: Path, key: str) -> Path:
     return output.with_name(f"{output.stem}-{key}.png")
 
 
-def run(args, console: Console) -> int:
+def run(args, console) -> int:
+    from ..brief import brief_html, brief_markdown
+    from rich.console import Console
     args.output = output_path(args.plan, args.output, args.markdown)
     check_outputs(args, args.output)  # before any work: refuse early, write nothing
     doc = read_plan(args.plan)

@@ -3,10 +3,8 @@ from __future__ import annotations
 
 from pathlib import Path
 
-from rich.console import Console
 
 from ..errors import UserError
-from ..ical import calendar_bytes, plan_calendar, plan_events, read_plan
 from ..outputs import is_stdout, write_atomic
 from .common import add_alarm, check_outputs, note
 
@@ -32,7 +30,8 @@ def output_path(args) -> Path:
     return out
 
 
-def run(args, console: Console) -> int:
+def run(args, console) -> int:
+    from ..ical import calendar_bytes, plan_calendar, plan_events, read_plan
     out = output_path(args)
     check_outputs(args, out)  # before any work: refuse early, write nothing
     doc = read_plan(args.plan)

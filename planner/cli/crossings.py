@@ -1,14 +1,9 @@
 """``hiplan crossings``: galactic-plane passages of a parked beam."""
 from __future__ import annotations
 
-from rich.console import Console
 
-from ..passages import search_passages_mjd
-from ..report import PASSAGE_FIELDS, crossings_document, crossings_renderable, to_csv, to_json
-from ..site import load_site
-from ..sunsafety import sun_approaches
-from .common import (add_b_max, add_output, add_period, add_pointing, add_site, check_outputs, emit,
-                     number, period_span, resolve_pointing)
+from .common import (add_b_max, add_output, add_period, add_pointing, add_site, check_outputs,
+                     emit, period_span, resolve_pointing)
 
 NAME = "crossings"
 HELP = "when a parked beam crosses the galactic plane"
@@ -22,7 +17,12 @@ def add_arguments(p) -> None:
     add_output(p)
 
 
-def run(args, console: Console) -> int:
+def run(args, console) -> int:
+    from ..passages import search_passages_mjd
+    from ..report import PASSAGE_FIELDS, crossings_document, to_csv, to_json
+    from ..render import crossings_renderable
+    from ..site import load_site
+    from ..sunsafety import sun_approaches
     site = load_site(args.site)
     check_outputs(args, args.output)
     pointing = resolve_pointing(args, site)

@@ -3,15 +3,8 @@ from __future__ import annotations
 
 from datetime import datetime, timezone
 
-import numpy as np
-from rich.console import Console
 
-from ..doppler import velocity_corrections
 from ..errors import UserError
-from ..report import LSR_FIELDS, lsr_document, lsr_renderable, to_csv, to_json
-from ..site import load_site
-from ..skytrack import track_mjd
-from ..timebase import datetime_to_mjd_utc, parse_instant
 from .common import (MAX_DAYS, add_lsr_definition, add_output, add_pointing, add_site, add_target,
                      check_outputs, emit, number, period_span, resolve_pointing, sky_target)
 
@@ -36,7 +29,14 @@ def add_arguments(p) -> None:
     add_output(p)
 
 
-def run(args, console: Console) -> int:
+def run(args, console) -> int:
+    import numpy as np
+    from ..doppler import velocity_corrections
+    from ..report import LSR_FIELDS, lsr_document, to_csv, to_json
+    from ..render import lsr_renderable
+    from ..site import load_site
+    from ..skytrack import track_mjd
+    from ..timebase import datetime_to_mjd_utc, parse_instant
     site = load_site(args.site)
     check_outputs(args, args.output)
     target = sky_target(args)

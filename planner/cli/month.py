@@ -3,24 +3,12 @@ from __future__ import annotations
 
 from datetime import date
 
-import numpy as np
-from rich.console import Console
 
-from ..coverage import sweep
 from ..errors import UserError
-from ..galaxy import model_from_name
-from ..month import Goal, minutes_for_rms, move_slots
-from ..monthsearch import best_plan, tradeoff
-from ..monthsafety import sun_guard
-from ..obslog import coverage_minutes, read_logs
 from ..outputs import is_stdout, write_all
-from ..park import DEFAULT_TARGET_MINUTES, candidate_pointings, parse_want
-from ..planfile import drift_plan_document
-from ..report import month_renderable, to_json
-from ..site import load_site
-from ..timebase import check_supported, local_day_span, parse_day
-from .common import (add_alarm, add_b_max, add_log, add_rotation, add_lsr_definition, add_night, add_site, check_outputs, current_setting, emit, figure_bytes,
-                     load_windows, night_setting, note, number, today_at)
+from .common import (DEFAULT_TARGET_MINUTES, add_alarm, add_b_max, add_log, add_lsr_definition,
+                     add_night, add_rotation, add_site, check_outputs, current_setting, emit,
+                     load_windows, night_setting, note, number, plan_chart_bytes, today_at)
 
 NAME = "month"
 HELP = "plan a month of drift scans: where to park each day, what to record"
@@ -85,6 +73,7 @@ def add_arguments(p) -> None:
 
 def period_from(args, site) -> tuple[float, float, int, str]:
     """(start_mjd, end_mjd, days, label) from --month or --start/--days."""
+    from ..timebase import check_supported, local_day_span, parse_day
     if args.month and (args.start or args.days):
         raise UserError("give --month, or --start with --days, not both")
     if args.month:
@@ -105,6 +94,15 @@ def period_from(args, site) -> tuple[float, float, int, str]:
 
 def build_plan(args, site):
     """Everything from options to the plan document (shared with the demo)."""
+    import numpy as np
+    from ..coverage import sweep
+    from ..galaxy import model_from_name
+    from ..month import Goal, minutes_for_rms, move_slots
+    from ..monthsafety import sun_guard
+    from ..monthsearch import best_plan, tradeoff
+    from ..obslog import coverage_minutes, read_logs
+    from ..park import DEFAULT_TARGET_MINUTES, candidate_pointings, parse_want
+    from ..planfile import drift_plan_document
     start_mjd, end_mjd, days, label = period_from(args, site)
     bw = site.rules.bin_width_deg
     want = parse_want(args.want, bw)
@@ -205,7 +203,10 @@ def _chart_paths(chart: str):
     return [path, path.with_name(f"{path.stem}-depth{path.suffix}")]
 
 
-def run(args, console: Console) -> int:
+def run(args, console) -> int:
+    from ..report import to_json
+    from ..render import month_renderable
+    from ..site import load_site
     site = load_site(args.site)
     charts = _chart_paths(args.chart) if args.chart else []
     outputs = [p for p in (args.output, args.ics) if p] + [str(c) for c in charts]
@@ -220,9 +221,8 @@ def run(args, console: Console) -> int:
     # failure in the calendar or a chart leaves no plan file behind.
     files = []
     if charts:
-        from ..plots import depth_chart, month_chart
-        for fig, path in ((month_chart(doc), charts[0]), (depth_chart(doc), charts[1])):
-            files.append((path, figure_bytes(fig, path.suffix[1:].lower())))
+        for chart, path in (("month_chart", charts[0]), ("depth_chart", charts[1])):
+            files.append((path, plan_chart_bytes(doc, chart, path.suffix[1:].lower())))
     if args.output:
         files.append((args.output, to_json(doc)))
     if args.ics:

@@ -1,19 +1,11 @@
 """``hiplan park``: at which declination to park a dish, and what it will deliver."""
 from __future__ import annotations
 
-import numpy as np
-from rich.console import Console
 
-from ..coverage import sweep
 from ..errors import UserError
-from ..obslog import coverage_minutes, read_logs
-from ..park import DEFAULT_TARGET_MINUTES, advise, candidate_pointings, parse_want, recommended
-from ..report import PARK_FIELDS, park_document, park_renderable, to_csv, to_json
-from ..site import load_site
-from ..sunsafety import sun_approaches
-from .common import (add_b_max, add_log, add_lsr_definition, add_night, add_output, add_period, add_site,
-                     check_outputs, current_setting, emit, figure_bytes, load_windows, night_setting, number,
-                     period_span)
+from .common import (DEFAULT_TARGET_MINUTES, add_b_max, add_log, add_lsr_definition, add_night,
+                     add_output, add_period, add_site, check_outputs, current_setting, emit,
+                     figure_bytes, load_windows, night_setting, number, period_span)
 
 NAME = "park"
 HELP = "which declination to park a dish at, ranked for your goals"
@@ -40,7 +32,15 @@ def add_arguments(p) -> None:
     add_output(p)
 
 
-def run(args, console: Console) -> int:
+def run(args, console) -> int:
+    import numpy as np
+    from ..coverage import sweep
+    from ..obslog import coverage_minutes, read_logs
+    from ..park import advise, candidate_pointings, parse_want
+    from ..report import PARK_FIELDS, park_document, to_csv, to_json
+    from ..render import park_renderable
+    from ..site import load_site
+    from ..sunsafety import sun_approaches
     site = load_site(args.site)
     plot_paths = _plot_paths(args.plot, args.force) if args.plot else None
     check_outputs(args, args.output, *(plot_paths or ()))
@@ -60,7 +60,7 @@ def run(args, console: Console) -> int:
     night_only, night_alt, night_kind = night_setting(args)
     result = sweep(site, pointings, start_mjd, end_mjd, args.b_max, night_only, intervals,
                    args.lsr_def, night_sun_alt_deg=night_alt)
-    approaches = sun_approaches(site, pointings, start_mjd, end_mjd)
+    approaches = sun_approaches(site, pointings, start_mjd, end_mjd, nodes=result.nodes)
     advice = advise(result, want, done, args.target_minutes, approaches)
     doc = park_document(result, advice, args.want, args.target_minutes, args.log, windows_text,
                         night_kind if night_only else None)
@@ -86,6 +86,7 @@ def _plot_paths(plot: str, force: bool):
 
 def _plot_files(paths, result, advice, want, done, args, site) -> list:
     """(path, bytes) of the atlas and the best declination's sky track, for ``emit``."""
+    from ..park import recommended
     from ..plots import coverage_atlas, sky_track_map
     atlas_path, sky_path = paths
     figures = [(atlas_figure(result, want, done, args.target_minutes, coverage_atlas), atlas_path),
@@ -95,6 +96,7 @@ def _plot_files(paths, result, advice, want, done, args, site) -> list:
 
 def atlas_figure(result, want, done, target_minutes, coverage_atlas):
     """The coverage atlas of a sweep: usable hours per declination and bin."""
+    import numpy as np
     from ..report import period_days_text, period_summary
     bw = result.bin_width_deg
     # Meridian settings only (the dish's current setting may be anywhere), by culmination.
@@ -117,6 +119,7 @@ def atlas_figure(result, want, done, target_minutes, coverage_atlas):
 
 def sky_figure(result, best, sky_track_map):
     """The beam track of the best declination over one sidereal day, with the Sun."""
+    import numpy as np
     from ..avoidance import sun_galactic_deg
     from ..coverage import SIDEREAL_DAY_UT1_DAYS
     from ..skytrack import track_mjd

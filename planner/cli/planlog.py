@@ -1,12 +1,10 @@
 """``hiplan plan-log``: turn a plan into observation-log rows, to edit after observing."""
 from __future__ import annotations
 
-from rich.console import Console
 
 from ..errors import UserError
-from ..obslog import QUALITIES, format_log
+from ..obslog import QUALITIES
 from ..outputs import is_stdout, write_atomic
-from ..planfile import plan_log_rows, read_plan
 from .common import check_outputs, note
 
 NAME = "plan-log"
@@ -22,7 +20,9 @@ def add_arguments(p) -> None:
     p.add_argument("--force", action="store_true", help="replace an existing output file")
 
 
-def run(args, console: Console) -> int:
+def run(args, console) -> int:
+    from ..obslog import format_log
+    from ..planfile import plan_log_rows, read_plan
     check_outputs(args, args.output)
     doc = read_plan(args.plan)
     rows = plan_log_rows(doc, args.quality)

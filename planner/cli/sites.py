@@ -1,11 +1,7 @@
 """``hiplan sites``: the site files hiplan can find."""
 from __future__ import annotations
 
-from rich.console import Console
-from rich.table import Table
 
-from ..report import to_json
-from ..site import available_sites, load_site
 from .common import add_output, check_outputs, emit
 
 NAME = "sites"
@@ -16,7 +12,10 @@ def add_arguments(p) -> None:
     add_output(p, formats=("table", "json"))
 
 
-def run(args, console: Console) -> int:
+def run(args, console) -> int:
+    from ..report import to_json
+    from ..site import available_sites, load_site
+    from rich.table import Table
     check_outputs(args, args.output, inputs=[("site file", p) for p in available_sites().values()])
     rows = []
     for stem, path in available_sites().items():

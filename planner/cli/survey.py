@@ -4,22 +4,12 @@ from __future__ import annotations
 from collections import defaultdict
 from datetime import datetime
 
-from rich import box
-from rich.console import Group
-from rich.table import Table
-from rich.text import Text
 
 from ..errors import UserError
-from ..galaxy import model_from_name
-from ..obslog import read_logs
-from ..report import period_summary, to_csv, to_json
-from ..site import load_site
-from ..slew import slew_model
-from ..survey import BLOCK_FIELDS, SurveySettings, plan_survey, repeats_done_from_log, survey_document
-from ..targets import GRID_EXAMPLE, check_unique, parse_grid, parse_reference, read_targets
-from ..windows import ALWAYS, describe_window_texts, read_windows
-from .common import (add_alarm, add_log, add_rotation, add_lsr_definition, add_night, add_output, add_period, add_site, check_outputs, emit,
-                     night_setting, number, period_span)
+from ..targets import GRID_EXAMPLE
+from .common import (add_alarm, add_log, add_lsr_definition, add_night, add_output, add_period,
+                     add_rotation, add_site, check_outputs, emit, night_setting, number,
+                     period_span)
 
 NAME = "survey"
 HELP = "schedule pointed integrations of a target grid or list (steerable dish)"
@@ -61,6 +51,15 @@ def add_arguments(p) -> None:
 
 
 def run(args, console) -> int:
+    from ..galaxy import model_from_name
+    from ..obslog import read_logs
+    from ..report import period_summary, to_csv, to_json
+    from ..site import load_site
+    from ..slew import slew_model
+    from ..survey import (BLOCK_FIELDS, SurveySettings, plan_survey, repeats_done_from_log,
+                          survey_document)
+    from ..targets import GRID_EXAMPLE, check_unique, parse_grid, parse_reference, read_targets
+    from ..windows import ALWAYS, read_windows
     site = load_site(args.site)
     slew_model(site)  # a clear error for transit or fixed mounts before any work
     check_outputs(args, args.output)
@@ -124,6 +123,11 @@ def _shown(block: dict) -> tuple[str, str]:
 
 def survey_renderable(doc: dict):
     """Header, one table row per block in local time, totals and the unscheduled targets."""
+    from ..windows import describe_window_texts
+    from rich import box
+    from rich.console import Group
+    from rich.table import Table
+    from rich.text import Text
     site, period, settings, summary = doc["site"], doc["period"], doc["settings"], doc["summary"]
     head = Text()
     head.append(site["name"], style="bold")

@@ -1,20 +1,8 @@
 """``hiplan tune``: where to tune the receiver, whether the line fits, expected noise."""
 from __future__ import annotations
 
-import numpy as np
-from rich.console import Console
 
-from ..doppler import velocity_corrections
 from ..errors import UserError
-from ..galactic import icrs_to_galactic_deg
-from ..galaxy import hi_velocity_envelope, model_from_name
-from ..passages import search_passages_mjd
-from ..report import to_json, tune_document, tune_renderable
-from ..sensitivity import days_to_reach, drift_time_s, radiometer_rms_k
-from ..site import load_site
-from ..spectral import tuning_advice
-from ..timebase import parse_instant
-from ..tuning import LineSetup, drift_depth, line_setup
 from .common import (add_b_max, add_lsr_definition, add_output, add_period, add_pointing,
                      add_rotation, add_site, add_target, check_outputs, emit, number, period_span,
                      resolve_pointing, sky_target)
@@ -47,7 +35,18 @@ def add_arguments(p) -> None:
     add_output(p, formats=("table", "json"))
 
 
-def run(args, console: Console) -> int:
+def run(args, console) -> int:
+    import numpy as np
+    from ..doppler import velocity_corrections
+    from ..galactic import icrs_to_galactic_deg
+    from ..galaxy import hi_velocity_envelope, model_from_name
+    from ..passages import search_passages_mjd
+    from ..report import to_json, tune_document
+    from ..render import tune_renderable
+    from ..sensitivity import days_to_reach, drift_time_s, radiometer_rms_k
+    from ..site import load_site
+    from ..spectral import tuning_advice
+    from ..tuning import LineSetup, drift_depth, line_setup
     site = load_site(args.site)
     # Without --site, --plan looks its site up among every known site file: all are inputs.
     from ..site import available_sites
@@ -117,10 +116,14 @@ def run(args, console: Console) -> int:
     return 0
 
 
-
-
-def _run_plan(args, console: Console, model) -> int:
+def _run_plan(args, console, model) -> int:
     """One receiver setting that covers every recording (or target) of a plan file."""
+    import numpy as np
+    from ..report import to_json, tune_document
+    from ..render import tune_renderable
+    from ..site import load_site
+    from ..timebase import parse_instant
+    from ..tuning import line_setup
     from ..planfile import read_plan
     doc = read_plan(args.plan)
     site = load_site(args.site) if args.site else _site_from_plan(doc, args.plan)
