@@ -72,9 +72,9 @@ DRIVE_AZIMUTH_TEXT = (
     "drive angle: turning the other way round can wind the cables up."
 )
 
-EVENT_KINDS = ("sun-hazard", "recording", "repark", "target", "reference")
+EVENT_KINDS = ("sun-hazard", "recording", "repark", "target", "reference", "calibration")
 _CATEGORY = {"recording": "HI recording", "repark": "dish re-park", "target": "HI survey",
-             "reference": "HI survey", "sun-hazard": "SUN HAZARD"}
+             "reference": "HI survey", "sun-hazard": "SUN HAZARD", "calibration": "HI calibration"}
 # A Sun hazard needs someone at the dish before it starts: its reminder comes at least
 # this long ahead, whatever the plan's alarm lead (our choice: time to get there).
 HAZARD_ALARM_MINUTES = 60
@@ -299,7 +299,35 @@ def _drift_events(doc, site, settings, tz, source) -> list[PlanEvent]:
         hazards = _member(day, "sun_hazards", where, source, kind=list, required=False) or []
         for j, hazard in enumerate(hazards):
             events.append(_sun_hazard(hazard, f"{where}.sun_hazards[{j}]", site, tz, source))
+        calibrations = _member(day, "calibrations", where, source, kind=list, required=False) or []
+        for j, cal in enumerate(calibrations):
+            if isinstance(cal, dict) and cal.get("task"):
+                events.append(_calibration(cal, f"{where}.calibrations[{j}]", park, centre_mhz,
+                                           site, tz, source))
     return events
+
+
+def _calibration(cal, where, park, centre_mhz, site, tz, source) -> PlanEvent:
+    """A pass of an IAU standard HI region through the parked beam: record it to check the scale."""
+    start, end = _span(cal, "start_utc", "end_utc", where, source)
+    name = _text(cal, "region", where, source)
+    peak = _number(cal, "expected_peak_k", where, source, 0, 1000)
+    closest = _instant(cal, "closest_utc", where, source)
+    summary = f"Calibrate: record the {name} pass ({closest.astimezone(tz):%H:%M}), about {peak:.0f} K"
+    lines = [
+        f"The IAU standard HI region {name} drifts through the beam, "
+        f"{_clock_span(start, end, tz)} ({tz.key} time), closest at "
+        f"{closest.astimezone(tz):%H:%M}.",
+        f"Record it as any recording; the line should peak near {peak:.0f} K in this beam. The "
+        "peak in your counts (or dB) above the line-free level gives the counts-to-kelvin scale "
+        "and the system temperature.",
+    ]
+    if park is not None:
+        lines.append(f"Dish: leave it parked at {_pointing_text(park)}.")
+    lines += _receiver_lines(None, centre_mhz) if centre_mhz is not None else []
+    lines += ["", SAFETY_TEXT]
+    return PlanEvent("calibration", start, end, summary, "\n".join(lines),
+                     _identity(site, "calibration", closest, name))
 
 
 def _sun_hazard(hazard, where, site, tz, source) -> PlanEvent:
@@ -480,10 +508,11 @@ def _block(block, kind, start, end, slews, site, tz, where, source,
     az1 = _number(block, "az_end_deg", where, source, -360, 720, required=False)
     drive0 = _number(block, "drive_az_start_deg", where, source, -720, 720, required=False)
     drive1 = _number(block, "drive_az_end_deg", where, source, -720, 720, required=False)
-    what = "" if kind == "target" else "reference "
+    what = {"target": "", "calibration": "standard region "}.get(kind, "reference ")
     summary = (f"Point dish at {what}{name} (az {az0:.0f}°, el {alt0:.0f}°)" if drive0 is None
                else f"Point dish at {what}{name} (drive az {drive0:.0f}°, el {alt0:.0f}°)")
-    role = "target" if kind == "target" else "reference position"
+    role = {"target": "target", "calibration": "IAU standard HI region, for calibration"}.get(
+        kind, "reference position")
     lines = [f"Observe {name} ({role}), {_clock_span(start, end, tz)} "
              f"({_minutes(start, end)} min, {tz.key} time)."]
     if stowed:
@@ -515,6 +544,9 @@ def _block(block, kind, start, end, slews, site, tz, where, source,
         pos.append(f"RA {ra_deg:.2f}°, Dec {dec_deg:+.2f}° (ICRS)")
     if pos:
         lines.append("Position: " + "; ".join(pos) + ".")
+    action = _text(block, "action", where, source, required=False) if kind == "calibration" else None
+    if action:
+        lines.append(action)
     tuning = _member(block, "tuning", where, source, required=False)
     centre_mhz = None if tuning is None else _number(tuning, "centre_mhz", f"{where}.tuning",
                                                      source, 0)

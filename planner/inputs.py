@@ -4,7 +4,9 @@ Files (site TOML, availability windows, target lists, observation logs, plans)
 are read through ``read_input``: only regular files (a device such as
 /dev/zero, a FIFO or a socket is refused before any byte is read, so nothing
 hangs), at most ``limit_bytes`` (``MAX_SMALL_FILE_BYTES`` for site, windows and
-target files; logs and plans keep their own 50 MB), never written to. Text
+target files; logs and plans keep their own 50 MB), never written to; ``open_input``
+makes the same checks and hands over the open file, for FITS recordings read in
+place rather than copied into memory. Text
 files are UTF-8; ``decode_text`` drops a leading byte-order mark, which some
 editors write.
 
@@ -53,13 +55,11 @@ def _article(what: str) -> str:
     return f"an {what}" if what[:1] in "aeiou" else f"a {what}"
 
 
-def read_input(path, what: str, limit_bytes: int, where: str | None = None) -> bytes:
-    """The bytes of an input file; a one-line UserError for every problem.
+def open_input(path, what: str, limit_bytes: int, where: str | None = None):
+    """An input file opened for binary reading, after the checks of ``read_input``.
 
-    ``what`` names the file kind in messages ("site file"); ``where`` is the
-    message prefix (default the path; a log says ``path:1``). Non-regular files
-    are refused without reading; a file larger than ``limit_bytes`` is refused,
-    also one that grows past it while being read.
+    For large inputs a reader pages through itself (a FITS table read column by column):
+    only regular files, at most ``limit_bytes``; the caller closes the handle.
     """
     src = str(path) if where is None else where
     try:
@@ -78,11 +78,22 @@ def read_input(path, what: str, limit_bytes: int, where: str | None = None) -> b
             raise UserError(f"{src}: cannot read {what}: it is {kind}, not a regular file")
         if info.st_size > limit_bytes:
             raise UserError(_too_big(src, info.st_size, limit_bytes, what))
-        handle = os.fdopen(fd, "rb")
+        return os.fdopen(fd, "rb")
     except BaseException:
         os.close(fd)
         raise
-    with handle:
+
+
+def read_input(path, what: str, limit_bytes: int, where: str | None = None) -> bytes:
+    """The bytes of an input file; a one-line UserError for every problem.
+
+    ``what`` names the file kind in messages ("site file"); ``where`` is the
+    message prefix (default the path; a log says ``path:1``). Non-regular files
+    are refused without reading; a file larger than ``limit_bytes`` is refused,
+    also one that grows past it while being read.
+    """
+    src = str(path) if where is None else where
+    with open_input(path, what, limit_bytes, where) as handle:
         try:
             data = handle.read(limit_bytes + 1)  # one byte more tells a file that grew
         except OSError as exc:

@@ -28,7 +28,7 @@ PLAN_SCHEMAS = (DRIFT_SCHEMA, SURVEY_SCHEMA)
 _DRIFT_KEYS = ("site", "period", "settings", "days", "summary")
 _SURVEY_KEYS = ("site", "period", "settings", "blocks", "unscheduled")
 # Survey block kinds (docs/plan-format.md); only target blocks are observations to log.
-SURVEY_BLOCK_KINDS = ("target", "reference", "slew", "stow")
+SURVEY_BLOCK_KINDS = ("target", "reference", "slew", "stow", "calibration")
 
 
 def shown_span(start: datetime, end: datetime, outward: bool = True) -> tuple[datetime, datetime]:

@@ -42,10 +42,13 @@ __all__ = [
     "avoidance_circle_deg",
     "coverage_atlas",
     "depth_chart",
+    "expected_spectra_grid",
+    "expected_spectrum_chart",
     "month_chart",
     "sky_track_map",
     "survey_chart",
     "survey_sky",
+    "tally_chart",
 ]
 
 # Okabe & Ito 2008, "Color Universal Design (CUD): how to make figures and
@@ -794,4 +797,141 @@ def survey_sky(plan: dict) -> Figure:
         names = ", ".join(u.get("name", "?") for u in unscheduled)
         handles.append(Patch(facecolor="none", edgecolor="none", label=f"not scheduled: {names}"))
     fig.legend(handles=handles, loc="outside lower center", ncols=len(handles), fontsize=9)
+    return fig
+
+
+# ---------------------------------------------------------------- expected HI spectrum
+
+_CURVE_COLOURS = ("blue", "orange", "green", "purple", "vermillion", "sky_blue")
+
+
+def expected_spectrum_chart(velocity_kms, curves, *, title: str = "", receiver: dict | None = None,
+                            small: bool = False) -> Figure:
+    """Expected brightness temperature against LSR velocity, one line per curve.
+
+    ``curves``: dicts with ``label`` and ``tb_k`` (on ``velocity_kms``). ``receiver`` (the
+    ``hiplan spectrum`` document's receiver object, optional): the usable band and the band
+    edges are shaded, the centre spike marked and the line-free ranges underlined, all in LSR
+    velocity. ``small``: the brief's thumbnail size. Okabe-Ito colours.
+    """
+    v = np.asarray(velocity_kms, dtype=float)
+    fig = Figure(figsize=(4.6, 2.6) if small else (9.0, 4.8), layout="constrained")
+    ax = fig.subplots()
+    if receiver:
+        lo, hi = sorted((receiver["usable_low_kms"], receiver["usable_high_kms"]))
+        blo, bhi = sorted((receiver["band_low_kms"], receiver["band_high_kms"]))
+        ax.axvspan(blo, bhi, color="0.93", lw=0, label="receiver band", gid="band")
+        ax.axvspan(lo, hi, color="0.85", lw=0, label="usable band", gid="usable")
+        ax.axvline(receiver["spike_v_lsr_kms"], color=OKABE_ITO["vermillion"], ls=":", lw=1.2,
+                   label="centre spike", gid="spike")
+        for a, b in receiver.get("line_free_kms", ()):
+            ax.plot([a, b], [0, 0], color=OKABE_ITO["green"], lw=4, solid_capstyle="butt",
+                    gid="line-free")
+        ax.plot([], [], color=OKABE_ITO["green"], lw=4, label="line-free (baseline)")
+    top = 1.0
+    for k, curve in enumerate(curves):
+        tb = np.asarray(curve["tb_k"], dtype=float)
+        top = max(top, float(tb.max()) if tb.size else 0.0)
+        ax.plot(v, tb, color=OKABE_ITO[_CURVE_COLOURS[k % len(_CURVE_COLOURS)]],
+                lw=1.2 if small else 1.6, label=curve.get("label"), gid=f"curve-{k}")
+    ax.set_ylim(-0.04 * top, 1.12 * top)
+    ax.set_xlim(float(v.min()), float(v.max()))
+    ax.set_xlabel("LSR velocity (km/s)", fontsize=8 if small else None)
+    ax.set_ylabel("T_B (K)", fontsize=8 if small else None)
+    ax.grid(True, color="0.88", lw=0.5)
+    ax.set_axisbelow(True)
+    if small:
+        ax.tick_params(labelsize=7)
+    if title:
+        ax.set_title(title, fontsize=8 if small else None)
+    ax.legend(fontsize=6 if small else 8, loc="upper right", frameon=False)
+    return fig
+
+
+# ---------------------------------------------------------------- tally against plan
+
+def tally_chart(doc: dict) -> Figure:
+    """Planned against recorded minutes: per local day (top) and per bin (bottom).
+
+    From a tally document made with a plan (``hiplan.tally/1`` with ``per_day`` and
+    ``per_bin``). Days: planned minutes as wide sky-blue bars, recorded as narrow blue
+    bars on top, days with missed intervals marked by a vermillion triangle under the bar.
+    Bins: the same bars on a longitude axis increasing to the left. Okabe-Ito colours.
+    """
+    if doc.get("schema") != "hiplan.tally/1" or "per_day" not in doc:
+        raise UserError("the tally chart needs a tally made with --plan")
+    days, bins = doc["per_day"], doc["per_bin"]
+    width = float(doc["settings"].get("bin_width_deg", 1.0))
+    fig = Figure(figsize=(11.0, 7.5), layout="constrained")
+    ax_day, ax_bin = fig.subplots(2, 1, height_ratios=(1.0, 1.1))
+    x = np.arange(len(days))
+    planned = np.array([d["planned_min"] for d in days], dtype=float)
+    recorded = np.array([d["recorded_min"] for d in days], dtype=float)
+    ax_day.bar(x, planned, width=0.8, color=OKABE_ITO["sky_blue"], label="planned", gid="day-planned")
+    ax_day.bar(x, recorded, width=0.4, color=OKABE_ITO["blue"], label="recorded (counted spectra)",
+               gid="day-recorded")
+    gaps = np.array([bool(d["missed"]) for d in days], dtype=bool)
+    if gaps.any():
+        ax_day.plot(x[gaps], np.zeros(int(gaps.sum())), ls="none", marker="^", ms=9,
+                    color=OKABE_ITO["vermillion"], clip_on=False, label="planned time missed",
+                    gid="day-missed")
+    ax_day.set_xticks(x, [d["date"][5:] for d in days], rotation=90, fontsize=8)
+    ax_day.set_xlim(-0.6, len(days) - 0.4)
+    ax_day.set_ylabel("Minutes in the strip")
+    ax_day.grid(True, axis="y", color="0.85", lw=0.5)
+    ax_day.set_axisbelow(True)
+    ax_day.legend(fontsize=8, loc="upper right", frameon=False)
+    ag = doc["agreement"]
+    ax_day.set_title(f"Planned against recorded — {doc['site'].get('name', '')}\n"
+                     f"{ag['recorded_min']:,.0f} of {ag['planned_min']:,.0f} planned minutes "
+                     f"recorded through {doc['plan']['through']}")
+    starts = np.array([b["l_bin"] for b in bins], dtype=float)
+    centres = starts + 0.5 * width
+    ax_bin.bar(centres, [b["planned_min"] for b in bins], width=width, color=OKABE_ITO["sky_blue"],
+               edgecolor="white", lw=0.3, label="planned", gid="bin-planned")
+    ax_bin.bar(centres, [b["recorded_min"] for b in bins], width=0.5 * width,
+               color=OKABE_ITO["blue"], label="recorded", gid="bin-recorded")
+    if starts.size:
+        lo, hi = float(starts.min()), float(starts.max() + width)
+        pad = max(2.0, 0.03 * (hi - lo))
+        ax_bin.set_xlim(hi + pad, lo - pad)
+    else:
+        ax_bin.set_xlim(360.0, 0.0)
+    ax_bin.set_xlabel("Galactic longitude l of the bin (deg, increasing to the left)")
+    ax_bin.set_ylabel("Minutes per bin")
+    ax_bin.grid(True, axis="y", color="0.85", lw=0.5)
+    ax_bin.set_axisbelow(True)
+    ax_bin.legend(fontsize=8, loc="upper right", frameon=False)
+    return fig
+
+
+def expected_spectra_grid(velocity_kms, groups) -> Figure:
+    """Small expected-spectrum panels, one per group (``label`` and ``curves`` with ``l_deg``,
+    ``b_deg``, ``tb_k``), two to a row: the brief's plot per dish setting or target group."""
+    v = np.asarray(velocity_kms, dtype=float)
+    n = max(len(groups), 1)
+    cols = 1 if n == 1 else 2
+    rows = (n + cols - 1) // cols
+    # Fixed margins, not constrained layout: the panels are alike and it is several times faster.
+    fig = Figure(figsize=(4.6 * cols, 2.3 * rows + 0.3))
+    fig.subplots_adjust(left=0.09 if cols == 2 else 0.14, right=0.98, bottom=0.5 / (2.3 * rows + 0.3),
+                        top=1 - 0.35 / (2.3 * rows + 0.3), wspace=0.22, hspace=0.55)
+    axes = np.atleast_1d(fig.subplots(rows, cols, squeeze=False)).ravel()
+    for ax, group in zip(axes, groups):
+        top = 1.0
+        for k, curve in enumerate(group.get("curves") or ()):
+            tb = np.asarray(curve["tb_k"], dtype=float)
+            top = max(top, float(tb.max()) if tb.size else 0.0)
+            label = f"l {curve['l_deg']:.1f}°" + (f", b {curve['b_deg']:+.1f}°" if curve.get("b_deg") else "")
+            ax.plot(v, tb, color=OKABE_ITO[_CURVE_COLOURS[k % len(_CURVE_COLOURS)]], lw=1.1, label=label)
+        ax.set_ylim(-0.04 * top, 1.15 * top)
+        ax.set_xlim(float(v.min()), float(v.max()))
+        ax.set_title(str(group.get("label", "")), fontsize=8)
+        ax.tick_params(labelsize=7)
+        ax.grid(True, color="0.88", lw=0.5)
+        ax.legend(fontsize=6, loc="upper right", frameon=False)
+        ax.set_xlabel("LSR velocity (km/s)", fontsize=7)
+        ax.set_ylabel("T_B (K)", fontsize=7)
+    for ax in axes[len(groups):]:
+        ax.set_visible(False)
     return fig

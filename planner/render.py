@@ -46,7 +46,8 @@ def sun_approach_text(site: Site, approaches) -> Text:
                 style="bold red")
 
 
-def crossings_renderable(site: Site, pointing: Pointing, search: PassageSearch, approaches=None):
+def crossings_renderable(site: Site, pointing: Pointing, search: PassageSearch, approaches=None,
+                         calibrators=None):
     """A rich renderable: header lines and a table of passages in local time."""
     tz = site.tz
     dish = site.dish
@@ -62,10 +63,11 @@ def crossings_renderable(site: Site, pointing: Pointing, search: PassageSearch, 
     head.append(f"Period {first:%Y-%m-%d %H:%M} – {last:%Y-%m-%d %H:%M} local "
                 f"({search.end_mjd - search.start_mjd:.1f} days)")
     feed = sun_approach_text(site, approaches)
+    cal = calibrator_text(site, calibrators)
     if not search.passages:
         note = Text(f"\nNo passage: the beam never comes within {search.b_max_deg:g}° of the "
                     f"galactic plane (closest |b| = {search.b_min_abs_deg:.2f}°).", style="yellow")
-        return Group(head, note, feed)
+        return Group(head, note, feed, cal)
 
     table = Table(box=box.SIMPLE_HEAD, header_style="bold", pad_edge=False)
     for name, justify in [("Date", "left"), ("Start", "right"), ("Peak", "right"),
@@ -101,7 +103,34 @@ def crossings_renderable(site: Site, pointing: Pointing, search: PassageSearch, 
                 f"Usable longitude bins: {compact_ranges(all_bins)}\n"
                 f"LSR correction over the period: {lo:+.2f} to {hi:+.2f} km/s "
                 "(add to topocentric velocity to get LSR velocity)")
-    return Group(head, table, foot, feed)
+    return Group(head, table, foot, feed, cal)
+
+
+def calibrator_text(site: Site, calibrators) -> Text:
+    """Passes of the IAU standard HI regions through the beam, for calibration (or why none)."""
+    from .report import calibrator_pass_records
+    out = Text()
+    if calibrators is None:
+        return out
+    records = calibrator_pass_records(*calibrators, site.tz, site.dish.beamwidth_deg)
+    if not records:
+        out.append("\nNo IAU standard HI region (S7, S8, S9) passes within half a beamwidth of "
+                   "this pointing in the period.")
+        return out
+    out.append(f"\nCalibration passes (IAU standard HI regions within half a beamwidth, "
+               f"{site.dish.beamwidth_deg / 2:.2f}°):\n", style="bold")
+    for r in records[:10]:
+        when = mjd_to_datetime_utc(_mjd(r["closest_utc"])).astimezone(site.tz)
+        out.append(f"  {when:%a %d %b %H:%M} {r['region']} at {r['sep_deg']:.2f}°: should peak "
+                   f"near {r['expected_peak_k']:.0f} K (published {r['published_peak_k']:g} K)\n")
+    if len(records) > 10:
+        out.append(f"  … and {len(records) - 10} more (JSON lists them all)\n")
+    return out
+
+
+def _mjd(iso: str) -> float:
+    from .timebase import parse_instant
+    return parse_instant(iso, "time")
 
 
 def lsr_renderable(doc: dict):
@@ -212,9 +241,10 @@ def park_renderable(doc: dict, top: int):
                 + (f", night only ({night})" if st["night_only"] else "")
                 + (f", windows: {'; '.join(describe_window_texts(st['windows']))}"
                    if st["windows"] else "")
-                + (f", log {_log_text(st['log'])}" if st["log"] else "")
                 + f", feed safety: Sun ≥ {st.get('sun_hazard_deg', s.get('sun_hazard_deg', 10)):g}° "
-                  "from the beam")
+                  "from the beam"
+                # the log's path on a line of its own: the header wraps the same wherever it lives
+                + (f"\nLog: {_log_text(st['log'])}" if st["log"] else ""))
     table = Table(box=box.SIMPLE_HEAD, header_style="bold", pad_edge=False)
     for name, just in [("#", "right"), ("Dec°", "right"), ("Elev°", "right"), ("Feed", "left"), ("Usable l°", "left"), ("/day", "right"),
                        ("Starts (local)", "left"), ("Min", "right"), ("Sun lost", "right"),
@@ -257,7 +287,32 @@ def park_renderable(doc: dict, top: int):
                            f"{date_ranges(tuple(r['sun_hazard_dates']))}\n", style="red")
         if len(unsafe) > top:
             reasons.append(f"  … and {len(unsafe) - top} more (see --format json)\n", style="red")
-    return Group(head, table, legend, reasons)
+    return Group(head, table, legend, reasons, park_calibration_text(doc))
+
+
+def park_calibration_text(doc: dict) -> Text:
+    """Which settings see an IAU standard HI region (a calibration pass), best rank first."""
+    out = Text()
+    seeing = [r for r in doc["declinations"] if r.get("calibrator_passes")]
+    if "calibrators" not in (doc["declinations"][0] if doc["declinations"] else {}):
+        return out
+    out.append("Calibration: ", style="bold")
+    if not seeing:
+        out.append("no setting's beam passes within half a beamwidth of an IAU standard HI region "
+                   "(S7, S8, S9) in this period.\n")
+        return out
+    out.append("settings whose beam passes over an IAU standard HI region (record the pass to "
+               "check the receiver's scale):\n")
+    for r in seeing[:8]:
+        side = "" if r["culmination"] == "upper" else " below the pole"
+        what = "; ".join(f"{c['region']} {c['passes']}× at {c['sep_deg']:.1f}°, first "
+                         f"{c['first_local'][5:10]} {c['first_local'][11:16]}, about "
+                         f"{c['expected_peak_k']:.0f} K" for c in r["calibrator_passes"])
+        out.append(f"  #{r['rank']} Dec {r['dec_deg']:+.1f}° (elevation {r['elevation_deg']:.1f}° "
+                   f"{r['facing']}{side}){'' if r['sun_safe'] else ' SUN HAZARD'}: {what}\n")
+    if len(seeing) > 8:
+        out.append(f"  … and {len(seeing) - 8} more (see --format json)\n")
+    return out
 
 
 def _hhmm(iso_local_text: str) -> str:
@@ -344,3 +399,140 @@ def month_renderable(doc: dict):
                            str(t["moves"]), str(t["upper_bound"]))
         return Group(head, table, foot, table2)
     return Group(head, table, foot)
+
+
+def tally_renderable(doc: dict):
+    """A tally document (``hiplan.tally/1``): what counted, what not and why, minutes per
+    bin as longitude ranges; with a plan, the days planned against recorded."""
+    from .tally import REASON_TEXT
+
+    sp, st, site = doc["spectra"], doc["settings"], doc["site"]
+    head = Text()
+    head.append(site["name"], style="bold")
+    files = len(doc["files"])
+    head.append(f"  {sp['read']:,} spectra from {files} file{'s' if files != 1 else ''}, "
+                f"{sp['first_utc'][:16].replace('T', ' ')} – {sp['last_utc'][:16].replace('T', ' ')} UTC\n")
+    head.append(f"Strip |b| ≤ {st['b_max_deg']:g}°, {st['bin_width_deg']:g}° bins, the Sun at least "
+                f"{st['sun_min_sep_deg']:g}° from the beam"
+                + (f", night only ({st['night']})" if st["night_only"] else "")
+                + f"; each time stamp marks the {st['stamp']} of its exposure.\n")
+    minutes = sum(b["minutes"] for b in doc["bins"])
+    head.append(f"Counted: {sp['counted']:,} spectra, {minutes:,.1f} min in {len(doc['bins'])} bins",
+                style="bold")
+    if sp.get("lsr_corr_min_kms") is not None:
+        head.append(f"; LSR correction {sp['lsr_corr_min_kms']:+.2f} … {sp['lsr_corr_max_kms']:+.2f} km/s")
+    head.append(".\n")
+    rejected = [(REASON_TEXT[k], v) for k, v in doc["rejected"].items() if v["spectra"]]
+    if rejected:
+        head.append("Not counted: " + "; ".join(f"{what} {v['spectra']:,} ({v['minutes']:,.1f} min)"
+                                                for what, v in rejected) + ".\n")
+    table = Table(box=box.SIMPLE_HEAD, header_style="bold", pad_edge=False,
+                  title="Minutes per bin", title_justify="left")
+    for name in ("Longitudes", "Bins", "Min per bin", "Total min"):
+        table.add_column(name, justify="left" if name == "Longitudes" else "right")
+    width = st["bin_width_deg"]
+    runs: list[list[dict]] = []
+    for b in doc["bins"]:  # bins with time, as runs of neighbours
+        if runs and abs(b["l_bin"] - runs[-1][-1]["l_bin"] - width) < 1e-9:
+            runs[-1].append(b)
+        else:
+            runs.append([b])
+    for run in runs:
+        lo, hi = run[0]["l_bin"], run[-1]["l_bin"]
+        values = [b["minutes"] for b in run]
+        table.add_row(f"{lo:g}" if lo == hi else f"{lo:g}–{hi:g}", str(len(run)),
+                      f"{min(values):.1f}" if len(run) == 1 else f"{min(values):.1f}–{max(values):.1f}",
+                      f"{sum(values):.1f}")
+    parts = [head, table]
+    if "per_day" in doc:
+        days = Table(box=box.SIMPLE_HEAD, header_style="bold", pad_edge=False,
+                     title=f"The plan ({doc['plan']['file']}) against the recordings",
+                     title_justify="left")
+        for name, just in (("Date", "left"), ("Planned min", "right"), ("Recorded min", "right"),
+                           ("Missed (local)", "left")):
+            days.add_column(name, justify=just, overflow="fold")
+        for day in doc["per_day"]:
+            missed = ", ".join(f"{m['start_local'][11:16]}–{m['end_local'][11:16]}" for m in day["missed"])
+            days.add_row(day["date"], f"{day['planned_min']:.1f}", f"{day['recorded_min']:.1f}", missed,
+                         style="bold" if day["missed"] else "")
+        foot = Text()
+        ag, at = doc["agreement"], doc["at_target"]
+        share = ag["recorded_min"] / ag["planned_min"] if ag["planned_min"] else 0.0
+        foot.append(f"Recorded {ag['recorded_min']:,.1f} of {ag['planned_min']:,.1f} planned minutes "
+                    f"({share:.0%}) through {doc['plan']['through']}", style="bold")
+        if ag["days_with_missed"]:
+            foot.append(f"; {ag['missed_min']:,.0f} min missed on {', '.join(ag['days_with_missed'])}")
+        foot.append(".\n")
+        if ag["max_day_difference_min"] is not None:
+            foot.append(f"On the {ag['days_complete']} days recorded in full, recorded and planned "
+                        f"minutes agree within {ag['max_day_difference_min']:.1f} min.\n")
+        foot.append(f"Wanted bins at {at['target_minutes']:g} min: {at['before']} before the plan, "
+                    f"{at['now']} now (the plan foresaw {at['planned_so_far']} by now, "
+                    f"{at['planned_by_end']} by its end) of {at['wanted_bins']}.\n")
+        parts += [days, foot]
+    return Group(*parts)
+
+
+# ----------------------------------------------------------------- hiplan spectrum
+
+def spectrum_renderable(doc: dict):
+    """The expected spectrum: position, peak, emission range, receiver view, a coarse profile."""
+    from rich.console import Group
+    from rich.table import Table
+    from rich.text import Text
+    from rich import box
+    head = Text()
+    many = "positions" in doc
+    head.append(f"Expected HI spectrum (model) — {doc['site']['name']}, beam "
+                f"{doc['beamwidth_deg']:g}°, rotation {doc['rotation_model']}\n", style="bold")
+    if many:
+        table = Table(box=box.SIMPLE_HEAD, header_style="bold", pad_edge=False)
+        for name in ("Position", "l", "b", "Peak T_B (K)", "at (km/s)", "T_B > 1 K (km/s)",
+                     f"Minutes for S/N {doc['snr']:g}"):
+            table.add_column(name, justify="right" if name != "Position" else "left")
+        for p in doc["positions"]:
+            span = ("—" if p["v_min_kms"] is None else f"{p['v_min_kms']:+.0f} … {p['v_max_kms']:+.0f}")
+            table.add_row(str(p.get("label", "")), f"{p['l_deg']:.1f}", f"{p['b_deg']:+.1f}",
+                          f"{p['peak_tb_k']:.1f}", f"{p['peak_velocity_kms']:+.0f}", span,
+                          "—" if p["minutes_for_snr"] is None else f"{p['minutes_for_snr']:.1f}")
+        return Group(head, table, Text("\n".join(doc["cautions"]), style="dim"))
+    pos = doc["position"]
+    head.append(f"l {pos['l_deg']:.2f}°, b {pos['b_deg']:+.2f}° (ICRS RA {pos['ra_deg']:.2f}°, "
+                f"Dec {pos['dec_deg']:+.2f}°)\n")
+    span = ("no emission above 1 K" if doc["v_min_kms"] is None else
+            f"emission above {doc['emission_level_k']:g} K from {doc['v_min_kms']:+.0f} to "
+            f"{doc['v_max_kms']:+.0f} km/s (LSR)")
+    head.append(f"Peak {doc['peak_tb_k']:.1f} K at {doc['peak_velocity_kms']:+.0f} km/s; {span}.\n")
+    if doc["minutes_for_snr"] is not None:
+        m = doc["minutes_for_snr"]
+        took = f"{m:.1f} min" if m >= 1.0 else f"{m * 60.0:.1f} s"
+        head.append(f"S/N {doc['snr']:g} on the peak per channel after {took} of integration "
+                    "(the line is strong; its faint wings take far longer).\n")
+    rec = doc.get("receiver")
+    if rec:
+        head.append(f"At {doc['time_local']}: LSR correction {doc['lsr_corr_kms']:+.2f} km/s. "
+                    f"Receiver centre {rec['centre_mhz']:.3f} MHz, usable "
+                    f"{rec['usable_low_mhz']:.3f}–{rec['usable_high_mhz']:.3f} MHz "
+                    f"({rec['usable_low_kms']:+.0f} to {rec['usable_high_kms']:+.0f} km/s LSR, "
+                    "reversed: higher frequency is lower velocity).\n")
+        head.append("The emission fits the usable band.\n" if rec["emission_fits"] else
+                    "The emission does NOT fit the usable band: widen the band or retune.\n",
+                    style="" if rec["emission_fits"] else "bold red")
+        on = "on the emission" if rec["spike_on_emission"] else "clear of the emission"
+        head.append(f"Centre spike at {rec['spike_v_lsr_kms']:+.1f} km/s LSR, {on} "
+                    f"(model {rec['spike_tb_k']:.1f} K there).\n")
+        free = "; ".join(f"{a:+.0f} to {b:+.0f}" for a, b in rec["line_free_kms"]) or "none"
+        head.append(f"Line-free for the baseline fit (km/s LSR): {free}.\n")
+    table = Table(box=box.SIMPLE_HEAD, header_style="bold", pad_edge=False,
+                  title="Profile every 10 km/s where above 0.5 K", title_justify="left")
+    table.add_column("v_LSR (km/s)", justify="right")
+    table.add_column("T_B (K)", justify="right")
+    if "frequency_mhz" in doc:
+        table.add_column("Sky frequency (MHz)", justify="right")
+    for i, (v, t) in enumerate(zip(doc["velocity_kms"], doc["tb_k"])):
+        if t > 0.5 and abs(v - round(v / 10) * 10) < 1e-6:
+            cells = [f"{v:+.0f}", f"{t:.1f}"]
+            if "frequency_mhz" in doc:
+                cells.append(f"{doc['frequency_mhz'][i]:.4f}")
+            table.add_row(*cells)
+    return Group(head, table, Text("\n".join(doc["cautions"]), style="dim"))

@@ -92,11 +92,13 @@ def approach_records(approaches, tz: ZoneInfo, hazards_only: bool = False) -> li
 
 
 def crossings_document(site: Site, pointing: Pointing, search: PassageSearch,
-                       approaches=None) -> dict:
+                       approaches=None, calibrators=None) -> dict:
     """The ``hiplan crossings`` result as a JSON-ready document.
 
     ``approaches``: ``sunsafety.sun_approaches`` for the pointing over the period;
     those closer than ``sun_hazard_deg`` are listed as ``sun_approaches``.
+    ``calibrators``: (``calpasses.CalibratorPasses``, expected peaks in K) for the pointing,
+    listed as ``calibrator_passes``.
     """
     tz = site.tz
     rng = lsr_range_kms(search)
@@ -110,6 +112,8 @@ def crossings_document(site: Site, pointing: Pointing, search: PassageSearch,
         "lsr_corr_max_kms": None if rng is None else round(rng[1], 3),
         "sun_hazard_deg": site.rules.sun_hazard_deg,
         "sun_approaches": [] if approaches is None else approach_records(approaches, tz),
+        "calibrator_passes": ([] if calibrators is None else
+                              calibrator_pass_records(*calibrators, tz, site.dish.beamwidth_deg)),
         "passages": [passage_record(p, tz) for p in search.passages],
     }
 
@@ -252,15 +256,17 @@ PARK_FIELDS = ("rank", "dec_deg", "elevation_deg", "az_deg", "facing", "culminat
                "sun_closest_deg", "sun_closest_utc", "sun_hazard_dates", "l_ranges", "passages_per_day",
                "passage_times_local", "duration_min", "sun_lost_fraction", "daylight_lost_fraction",
                "window_lost_fraction", "usable_hours", "lsr_corr_min_kms", "lsr_corr_max_kms",
-               "rms_per_bin_day_k", "needed_bins_served", "score", "reason")
+               "rms_per_bin_day_k", "needed_bins_served", "score", "reason", "calibrators")
 
 
 def park_document(sweep, advice, want_text: str, target_minutes: float, log_source: str | None,
-                  windows_text: list[str], night: str | None = None) -> dict:
+                  windows_text: list[str], night: str | None = None, calibrators=None) -> dict:
     """Ranked declination advice as a JSON-ready document.
 
     ``recommended`` lists the ranks worth recommending (Sun-safe and serving a
-    still-needed bin); empty when nothing wanted can be served safely.
+    still-needed bin); empty when nothing wanted can be served safely. ``calibrators``
+    (``calpasses.CalibratorPasses`` over the sweep's pointings, expected peaks in K): each
+    setting lists the IAU standard HI regions its beam passes over (``calibrator_passes``).
     """
     from .park import _facing, compact_bins, recommended
     site = sweep.site
@@ -293,6 +299,11 @@ def park_document(sweep, advice, want_text: str, target_minutes: float, log_sour
             "rms_per_bin_day_k": None if a.rms_per_bin_day_k is None else round(a.rms_per_bin_day_k, 4),
             "needed_bins_served": a.needed_bins_served, "score": round(a.score, 3), "reason": a.reason,
         })
+    if calibrators is not None:
+        seen = park_calibrators(sweep, *calibrators)
+        for row, a in zip(rows, advice):
+            row["calibrator_passes"] = seen.get(_setting_key(a.pointing), [])
+            row["calibrators"] = ";".join(c["region"] for c in row["calibrator_passes"])
     ranks = {id(a): rank for rank, a in enumerate(advice, start=1)}
     return {
         "schema": PARK_SCHEMA, "site": site.summary(),
@@ -313,4 +324,124 @@ def _tidy(value: float):
     return int(value) if float(value).is_integer() else float(value)
 
 
+def _setting_key(pointing) -> tuple[float, float]:
+    return (round(pointing.dec_deg, 6), round(pointing.ha_deg, 6))
+
+
+def park_calibrators(sweep, passes, peaks_k) -> dict:
+    """Per setting (``_setting_key``): one summary per standard region its beam passes over
+    in the period: how many passes, the closest, the first local time, the expected peak."""
+    tz = sweep.site.tz
+    out: dict = {}
+    for r, row in enumerate(sweep.rows):  # the settings that see a region are few
+        idx = passes.for_row(r)
+        if idx.size == 0:
+            continue
+        items = []
+        for k in sorted(set(int(x) for x in passes.region[idx])):
+            mine = idx[passes.region[idx] == k]
+            first = mine[np.argmin(passes.closest_mjd[mine])]
+            items.append({"region": passes.regions[k].name, "passes": int(mine.size),
+                          "sep_deg": round(float(passes.sep_deg[mine].min()), 2),
+                          "first_local": iso_local(passes.closest_mjd[first], tz),
+                          "published_peak_k": passes.regions[k].peak_tb_k,
+                          "expected_peak_k": round(float(peaks_k[first]), 1)})
+        out[_setting_key(row.pointing)] = items
+    return out
+
+
 # ---------------------------------------------------------------- hiplan month
+
+
+# ----------------------------------------------------------------- hiplan spectrum
+
+SPECTRUM_SCHEMA = "hiplan.spectrum/1"
+SPECTRUM_FIELDS = ("velocity_kms", "tb_k", "frequency_mhz")
+
+
+def spectrum_document(site: Site, spectrum, rotation_name: str, lsr_definition: str,
+                      mjd_utc: float | None = None, view=None, snr: float = 10.0,
+                      labels=None) -> dict:
+    """An expected HI spectrum (``hidisc.Spectrum``) as a JSON-ready document.
+
+    One position: ``velocity_kms``, ``tb_k`` and the summary at the top level; with ``view``
+    (``expected.ReceiverView``, needs ``mjd_utc``) also ``frequency_mhz`` and ``receiver``.
+    Several positions (a plan's bins or targets): ``positions``, each with its ``tb_k``.
+    """
+    from dataclasses import asdict
+    from .calibration import dilution_caveat
+    from .expected import CAUTION, lsr_velocity_of_sky_kms, minutes_for_snr, spectrum_summary
+    from .galactic import galactic_to_icrs_deg
+    from .hidisc import EMISSION_LEVEL_K, DiscModel
+    tz = site.tz
+    ra, dec = galactic_to_icrs_deg(spectrum.l_deg, spectrum.b_deg)
+    minutes = minutes_for_snr(spectrum.peak_tb_k, site.receiver.tsys_k,
+                              site.receiver.channel_width_khz, snr)
+    model = {k: v for k, v in asdict(DiscModel()).items() if k != "rotation"}
+    doc = {
+        "schema": SPECTRUM_SCHEMA, "site": site.summary(),
+        "beamwidth_deg": round(float(spectrum.beamwidth_deg), 3),
+        "rotation_model": rotation_name, "disc_model": model, "lsr_definition": lsr_definition,
+        "emission_level_k": EMISSION_LEVEL_K, "snr": snr,
+        "cautions": [c for c in (CAUTION, dilution_caveat(float(spectrum.beamwidth_deg))) if c],
+        "velocity_kms": [round(float(v), 3) for v in spectrum.velocity_kms],
+    }
+    rows = []
+    for i in range(spectrum.l_deg.size):
+        row = {"l_deg": round(float(spectrum.l_deg[i]), 4), "b_deg": round(float(spectrum.b_deg[i]), 4),
+               "ra_deg": round(float(np.atleast_1d(ra)[i]), 4),
+               "dec_deg": round(float(np.atleast_1d(dec)[i]), 4),
+               **spectrum_summary(spectrum, i),
+               "minutes_for_snr": None if not np.isfinite(minutes[i]) else round(float(minutes[i]), 4)}
+        if labels is not None:
+            row = {"label": labels[i], **row}
+        rows.append((row, [round(float(t), 3) for t in spectrum.tb_k[i]]))
+    if len(rows) == 1 and labels is None:
+        row, tb = rows[0]
+        doc["position"] = {k: row[k] for k in ("l_deg", "b_deg", "ra_deg", "dec_deg")}
+        doc.update({k: row[k] for k in row if k not in doc["position"]})
+        doc["tb_k"] = tb
+    else:
+        doc["positions"] = [{**row, "tb_k": tb} for row, tb in rows]
+    if mjd_utc is not None:
+        doc["time_utc"] = iso_utc(mjd_utc)
+        doc["time_local"] = iso_local(mjd_utc, tz)
+    if view is not None:
+        a = view.advice
+        def kms(f_mhz):
+            return round(float(lsr_velocity_of_sky_kms(f_mhz, view.factor)), 2)
+
+        doc["frequency_mhz"] = [round(float(f), 6) for f in view.frequency_mhz]
+        doc["lsr_corr_kms"] = round(view.lsr_corr_kms, 4)
+        doc["receiver"] = {
+            "centre_mhz": round(a.centre_mhz, 6), "bandwidth_mhz": a.bandwidth_mhz,
+            "band_low_mhz": round(view.band_low_mhz, 6), "band_high_mhz": round(view.band_high_mhz, 6),
+            "usable_low_mhz": round(view.usable_low_mhz, 6),
+            "usable_high_mhz": round(view.usable_high_mhz, 6),
+            "band_low_kms": kms(view.band_low_mhz), "band_high_kms": kms(view.band_high_mhz),
+            "usable_low_kms": kms(view.usable_low_mhz), "usable_high_kms": kms(view.usable_high_mhz),
+            "channel_width_khz": round(a.channel_width_khz, 4),
+            "emission_fits": view.emission_fits,
+            "spike_v_lsr_kms": round(view.spike_v_lsr_kms, 2), "spike_tb_k": round(view.spike_tb_k, 2),
+            "spike_on_emission": view.spike_tb_k > EMISSION_LEVEL_K,
+            "line_free_kms": [[round(x, 1), round(y, 1)] for x, y in view.line_free_kms],
+            "line_free_mhz": [[round(x, 4), round(y, 4)] for x, y in view.line_free_mhz],
+        }
+    return doc
+
+
+def calibrator_pass_records(passes, peaks_k, tz: ZoneInfo, beamwidth_deg: float) -> list[dict]:
+    """Passes of the IAU standard HI regions (``calpasses``) as JSON-ready dicts, in time order."""
+    out = []
+    for i in range(passes.row.size):
+        reg = passes.regions[int(passes.region[i])]
+        out.append({
+            "region": reg.name, "region_l_deg": reg.l_deg, "region_b_deg": reg.b_deg,
+            "closest_utc": iso_utc(passes.closest_mjd[i]),
+            "closest_local": iso_local(passes.closest_mjd[i], tz),
+            "sep_deg": round(float(passes.sep_deg[i]), 3),
+            "half_beamwidth_deg": round(beamwidth_deg / 2.0, 3),
+            "published_peak_k": reg.peak_tb_k,
+            "expected_peak_k": round(float(peaks_k[i]), 1),
+        })
+    return out

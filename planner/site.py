@@ -4,7 +4,9 @@ A site file has four tables (all angles in degrees, longitude east-positive):
 
 ``[site]``      name, latitude_deg, longitude_deg, height_m, timezone (IANA)
 ``[dish]``      diameter_m, beamwidth_deg (optional), mount, elevation limits,
-                horizon mask, and for ``altaz`` mounts azimuth limits and slew rates
+                horizon mask, and for ``altaz`` mounts azimuth limits and slew rates;
+                for a dish run by ``hiplan drive`` an optional park position and
+                pointing tolerance
 ``[receiver]``  bandwidth_mhz, channels, tsys_k
 ``[rules]``     sun_min_sep_deg, sun_hazard_deg, moon_min_sep_deg, b_max_deg, bin_width_deg
 
@@ -43,6 +45,9 @@ HI_WAVELENGTH_M = SPEED_OF_LIGHT_KMS * 1e3 / (HI_REST_FREQUENCY_MHZ * 1e6)
 HPBW_COEFFICIENT_DEG = 70.0
 
 MOUNTS = ("transit", "fixed", "altaz")
+# Per-axis pointing tolerance for a dish run by ``hiplan drive``: 0.5 deg, a fifteenth of a
+# 2 m dish's beam at 21 cm; our choice.
+DEFAULT_POINTING_TOLERANCE_DEG = 0.5
 DEFAULT_SITE = "hollowmere"
 
 
@@ -64,6 +69,11 @@ class Dish:
     slew_az_deg_s: float | None = None
     slew_el_deg_s: float | None = None
     settle_s: float = 0.0
+    # Where ``hiplan drive`` parks the dish (drive azimuth, elevation); None: the Sun-safe stow.
+    park_alt_deg: float | None = None
+    park_az_deg: float | None = None
+    # How close a read-back position must be to the commanded one, per axis, to count as there.
+    pointing_tolerance_deg: float = DEFAULT_POINTING_TOLERANCE_DEG
 
     def horizon_limit_deg(self, az_deg) -> np.ndarray:
         """Lowest usable elevation at azimuth ``az_deg``: max(mask, elevation_min)."""
@@ -176,6 +186,10 @@ FIELDS: dict[str, dict[str, _Spec]] = {
         "slew_az_deg_s": _Spec(_NUM, False, 0, 90, lo_open=True),
         "slew_el_deg_s": _Spec(_NUM, False, 0, 90, lo_open=True),
         "settle_s": _Spec(_NUM, False, 0, 3600, default=0.0),
+        "park_alt_deg": _Spec(_NUM, False, 0, 90),
+        "park_az_deg": _Spec(_NUM, False, -360, 720),
+        "pointing_tolerance_deg": _Spec(_NUM, False, 0, 10, lo_open=True,
+                                        default=DEFAULT_POINTING_TOLERANCE_DEG),
     },
     "receiver": {
         "bandwidth_mhz": _Spec(_NUM, True, 0, 1000, lo_open=True),
@@ -308,6 +322,17 @@ def site_from_dict(raw: dict, src: str = "<site>") -> Site:
         beam_from = "70 lambda/D (tapered dish)"
     else:
         beam, beam_from = d["beamwidth_deg"], "site file"
+    if (d["park_alt_deg"] is None) != (d["park_az_deg"] is None):
+        raise UserError(f"{src}: [dish] park_alt_deg and park_az_deg go together (or leave both "
+                        "out for the Sun-safe stow toward the pole)")
+    if d["park_alt_deg"] is not None and d["park_alt_deg"] > d["elevation_max_deg"]:
+        raise UserError(f"{src}: [dish] park_alt_deg = {d['park_alt_deg']:g} is above "
+                        f"elevation_max_deg ({d['elevation_max_deg']:g})")
+    if d["park_az_deg"] is not None and not (d["azimuth_min_deg"] <= d["park_az_deg"]
+                                             <= d["azimuth_max_deg"]):
+        raise UserError(f"{src}: [dish] park_az_deg = {d['park_az_deg']:g} is outside the drive "
+                        f"range azimuth_min_deg..azimuth_max_deg ({d['azimuth_min_deg']:g}.."
+                        f"{d['azimuth_max_deg']:g})")
     if ("alt_deg" in raw.get("pointing", {})) != ("az_deg" in raw.get("pointing", {})):
         raise UserError(f"{src}: [pointing] needs both alt_deg and az_deg")
     haz, hel = _parse_horizon(src, d["horizon"])
@@ -318,7 +343,8 @@ def site_from_dict(raw: dict, src: str = "<site>") -> Site:
         horizon_az_deg=haz, horizon_el_deg=hel,
         azimuth_min_deg=d["azimuth_min_deg"], azimuth_max_deg=d["azimuth_max_deg"],
         slew_az_deg_s=d["slew_az_deg_s"], slew_el_deg_s=d["slew_el_deg_s"],
-        settle_s=d["settle_s"],
+        settle_s=d["settle_s"], park_alt_deg=d["park_alt_deg"], park_az_deg=d["park_az_deg"],
+        pointing_tolerance_deg=d["pointing_tolerance_deg"],
     )
     receiver = Receiver(bandwidth_mhz=r["bandwidth_mhz"], channels=r["channels"], tsys_k=r["tsys_k"])
     rules = Rules(**u)

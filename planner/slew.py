@@ -19,7 +19,7 @@ the legal choices the shortest move wins.
 Feed safety: given the Sun's position, a choice whose path (both axes at once,
 the way the drive azimuth goes, possibly the long way round) passes closer to
 the Sun than a given clearance is illegal too (``sunsafety.slew_sun_sep_deg``);
-the caller's clearance carries the margins (see ``planner.survey``).
+the caller's clearance carries the margins (see ``planner.surveyvisibility``).
 
 Angles in degrees, rates in degrees per second, times in seconds.
 """

@@ -59,3 +59,15 @@ def test_size_limit_and_bom(tmp_path, monkeypatch):
     path.write_bytes(b"x = 1\n\xe9\n")
     with pytest.raises(UserError, match=r"not UTF-8 text \(byte 0xE9 on line 2\)"):
         inputs.read_input_text(path, "site file", 100)
+
+
+def test_open_input_checks_like_read_input(tmp_path):
+    from planner.inputs import open_input
+    path = tmp_path / "x.bin"
+    path.write_bytes(b"0123456789")
+    with open_input(path, "recording", 10) as handle:
+        assert handle.read() == b"0123456789"
+    with pytest.raises(UserError, match="x.bin: file is 0.0 MB, larger than the 9e-06 MB limit for a recording"):
+        open_input(path, "recording", 9)
+    with pytest.raises(UserError, match="cannot read recording: it is a folder"):
+        open_input(tmp_path, "recording", 10)

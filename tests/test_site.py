@@ -200,3 +200,28 @@ def test_devices_pipes_and_deep_nesting_are_one_line_errors(tmp_path):
     deep.write_text("x = " + "[" * 100_000 + "]" * 100_000 + "\n")
     with pytest.raises(UserError, match=r"deep\.toml: not a site file \(arrays or tables nested"):
         read_site_file(deep)
+
+
+def test_drive_fields_park_and_pointing_tolerance():
+    dish = site_from_dict(_raw("saltbush-ridge"), "x.toml").dish
+    assert (dish.park_alt_deg, dish.park_az_deg, dish.pointing_tolerance_deg) == (None, None, 0.5)
+    raw = _raw("saltbush-ridge")
+    raw["dish"].update(park_alt_deg=80, park_az_deg=-90, pointing_tolerance_deg=0.2)
+    dish = site_from_dict(raw, "x.toml").dish
+    assert (dish.park_alt_deg, dish.park_az_deg, dish.pointing_tolerance_deg) == (80.0, -90.0, 0.2)
+
+
+@pytest.mark.parametrize("fields, message", [
+    ({"park_alt_deg": 80}, "park_alt_deg and park_az_deg go together"),
+    ({"park_alt_deg": 89, "park_az_deg": 0}, "above elevation_max_deg"),  # saltbush: 88
+    ({"park_alt_deg": 40, "park_az_deg": 355}, "outside the drive range"),  # -170..350
+    ({"park_alt_deg": -1, "park_az_deg": 0}, r"park_alt_deg = -1 is out of range \[0, 90\]"),
+    ({"pointing_tolerance_deg": 0}, r"pointing_tolerance_deg = 0 is out of range \(0, 10\]"),
+    ({"park_azimuth_deg": 0}, "did you mean 'park_az_deg'"),
+])
+def test_drive_field_mistakes(fields, message):
+    raw = _raw("saltbush-ridge")
+    raw["dish"].update(fields)
+    with pytest.raises(UserError, match=message) as info:
+        site_from_dict(raw, "x.toml")
+    assert str(info.value).startswith("x.toml: [dish] ")

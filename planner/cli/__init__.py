@@ -12,10 +12,12 @@ import sys
 
 from .. import __version__
 from ..errors import UserError
-from . import brief, calendar, crossings, demo, lsr, month, park, planlog, sites, survey, tune
+from . import (brief, calendar, crossings, demo, drive, lsr, month, park, planlog, sites, spectrum,
+               survey, tally, tune)
 from .common import Parser, TerminalConsole
 
-COMMAND_MODULES = (demo, park, month, survey, calendar, brief, planlog, crossings, lsr, tune, sites)
+COMMAND_MODULES = (demo, park, month, survey, calendar, brief, planlog, tally, crossings, lsr, tune, spectrum,
+                   drive, sites)
 COMMANDS = {m.NAME: m.run for m in COMMAND_MODULES}
 
 

@@ -69,13 +69,53 @@ def output_format(output: Path | None, markdown: bool) -> str:
 
 
 def chart_pngs(doc: dict) -> dict[str, bytes]:
-    """PNG bytes of the plan's charts; empty while planner.plots is not available."""
+    """PNG bytes of the plan's charts and expected spectra; empty while planner.plots is not
+    available."""
     try:
         from .. import plots
     except ImportError:
         return {}
-    return {key: plan_chart_bytes(doc, func_name) for key, func_name in CHARTS.get(doc.get("kind"), ())
-            if getattr(plots, func_name, None) is not None}
+    out = {key: plan_chart_bytes(doc, func_name) for key, func_name in CHARTS.get(doc.get("kind"), ())
+           if getattr(plots, func_name, None) is not None}
+    if getattr(plots, "expected_spectra_grid", None) is not None:
+        out.update(spectrum_pngs(doc, plots.expected_spectra_grid))
+    return out
+
+
+def spectrum_pngs(doc: dict, grid) -> dict[str, bytes]:
+    """The brief's expected-spectrum panels (one per group of ``doc["expected"]``), one image."""
+    from ..briefline import FIGURE_KEY
+    from .common import figure_bytes
+    import hashlib
+    import json
+    expected = doc.get("expected") or {}
+    if not expected.get("groups"):
+        return {}
+    # Drawn once per process for the same spectra (the demo's HTML and Markdown briefs).
+    key = hashlib.sha256(json.dumps(expected, sort_keys=True).encode()).hexdigest()
+    if key not in _SPECTRA_CACHE:
+        _SPECTRA_CACHE[key] = figure_bytes(grid(expected["velocity_kms"], expected["groups"]), "png")
+    return {FIGURE_KEY: _SPECTRA_CACHE[key]}
+
+
+_SPECTRA_CACHE: dict[str, bytes] = {}
+
+
+def with_expected(doc: dict) -> dict:
+    """The plan with its ``expected`` spectra, computed from the plan's site and rotation model
+    when the plan does not carry them (older plans, survey plans)."""
+    if isinstance(doc.get("expected"), dict) or not isinstance(doc.get("site"), dict):
+        return doc
+    from ..galaxy import PRESETS, model_from_name
+    from ..hidisc import DiscModel
+    from ..planexpect import expected_from_document
+    name = (doc.get("settings") or {}).get("rotation_model") or "iau1985"
+    rotation = model_from_name(name if name in PRESETS else "iau1985")
+    try:
+        expected = expected_from_document(doc, DiscModel(rotation=rotation))
+    except (KeyError, TypeError, ValueError, UserError):
+        return doc  # a plan too incomplete for spectra: the brief goes without them
+    return {**doc, "expected": expected}
 
 
 def chart_path(output: Path, key: str) -> Path:
@@ -87,7 +127,7 @@ def run(args, console) -> int:
     from rich.console import Console
     args.output = output_path(args.plan, args.output, args.markdown)
     check_outputs(args, args.output)  # before any work: refuse early, write nothing
-    doc = read_plan(args.plan)
+    doc = with_expected(read_plan(args.plan))
     fmt = output_format(args.output, args.markdown)
     pngs = {} if args.no_charts else None
     if args.output is not None and fmt == "markdown":

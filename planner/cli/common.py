@@ -72,8 +72,8 @@ def add_period(p, default_days: int):
                    help=f"number of days (default {default_days})")
 
 
-def add_pointing(p):
-    g = p.add_argument_group("pointing (default: the site file's [pointing])")
+def add_pointing(p, title: str = "pointing (default: the site file's [pointing])"):
+    g = p.add_argument_group(title)
     g.add_argument("--dec", type=number(float, "--dec", -90, 90),
                    help="declination of date (deg); on the meridian unless --ha is given")
     g.add_argument("--ha", type=number(float, "--ha", -180, 180),

@@ -18,6 +18,7 @@ def add_arguments(p) -> None:
 
 
 def run(args, console) -> int:
+    from ..calpasses import calibrator_passes, expected_pass_peaks_k
     from ..passages import search_passages_mjd
     from ..report import PASSAGE_FIELDS, crossings_document, to_csv, to_json
     from ..render import crossings_renderable
@@ -29,10 +30,13 @@ def run(args, console) -> int:
     start_mjd, end_mjd = period_span(args, site)
     search = search_passages_mjd(site, pointing, start_mjd, end_mjd, args.b_max)
     approaches = sun_approaches(site, [pointing], start_mjd, end_mjd)
+    passes = calibrator_passes(site, [pointing], start_mjd, end_mjd)
+    calibrators = (passes, expected_pass_peaks_k(site, [pointing], passes))
     if args.format == "table":
-        emit(args, console, None, crossings_renderable(site, pointing, search, approaches))
+        emit(args, console, None, crossings_renderable(site, pointing, search, approaches,
+                                                       calibrators))
     else:
-        doc = crossings_document(site, pointing, search, approaches)
+        doc = crossings_document(site, pointing, search, approaches, calibrators)
         text = to_json(doc) if args.format == "json" else to_csv(doc["passages"], PASSAGE_FIELDS)
         emit(args, console, text)
     return 0

@@ -22,6 +22,11 @@ DEMO_START = "2027-03-01"
 DEMO_WANT = "30-90,120-200"
 # Someone must climb to the jack for each move: the club allows four a month.
 DEMO_MAX_MOVES = "4"
+# The recordings stage: the station follows the plan until DEMO_REPLAN_DAY, two-minute
+# spectra, except two nights the receiver was off; then the rest of March is re-planned.
+DEMO_REPLAN_DAY = "2027-03-20"
+DEMO_GAP = ("2027-03-05", "2027-03-06")
+DEMO_EXPOSURE_S = 120.0
 
 
 def add_arguments(p) -> None:
@@ -35,8 +40,9 @@ def _examples_dir() -> Path | None:
     return here if here.is_dir() else None
 
 
-def steps(out: Path) -> list[tuple[str, list[str], list[Path]]]:
-    """(what, hiplan arguments, files written) for each stage of the demo."""
+def steps(out: Path) -> list[tuple[str, list, list[Path]]]:
+    """(what, hiplan arguments, files written) for each stage of the demo; a stage of a few
+    steps lists them (argument lists, or a callable taking --force)."""
     ex = _examples_dir()
     goals = ["--want", DEMO_WANT]
     if ex is not None:
@@ -75,8 +81,38 @@ def steps(out: Path) -> list[tuple[str, list[str], list[Path]]]:
         ("LSR corrections", ["lsr", *school, "--start", DEMO_START, "--days", "1", "--step", "30",
                              "--format", "csv", "-o", str(out / "lsr-saltbush-ridge.csv")],
          [out / "lsr-saltbush-ridge.csv"]),
+        ("expected spectrum (calibration region S7)",
+         ["spectrum", *club, "--l", "132", "--b", "-1", "--time", "2027-03-02T03:37:00Z",
+          "-o", str(out / "spectrum-hollowmere.txt"), "--plot", str(out / "spectrum-hollowmere.png")],
+         [out / "spectrum-hollowmere.txt", out / "spectrum-hollowmere.png"]),
+        ("recordings tallied, rest of the month re-planned",
+         [lambda force: _recordings(plan, out / "recordings-hollowmere.csv", force),
+          ["tally", str(out / "recordings-hollowmere.csv"), *club, "--plan", str(plan),
+           "--format", "json", "-o", str(out / "tally-hollowmere.json"),
+           "--log-out", str(out / "tally-hollowmere-log.csv")],
+          ["month", *club, "--keep", str(plan), "--start", DEMO_REPLAN_DAY, *goals,
+           "--log", str(out / "tally-hollowmere-log.csv"), *rota, "--max-moves", DEMO_MAX_MOVES,
+           "--output", str(out / "replan-hollowmere.json")]],
+         [out / "recordings-hollowmere.csv", out / "tally-hollowmere.json", out / "tally-hollowmere-log.csv",
+          out / "replan-hollowmere.json"]),
     ]
     return stages
+
+
+def _recordings(plan: Path, path: Path, force: bool) -> None:
+    """Synthetic recordings of the plan up to DEMO_REPLAN_DAY, the DEMO_GAP nights left out."""
+    from datetime import date
+    from zoneinfo import ZoneInfo
+
+    from ..outputs import write_atomic
+    from ..planfile import read_plan
+    from ..recordings import planned_spectra, recordings_csv
+    from ..timebase import local_midnight_mjd
+    doc = read_plan(plan)
+    times = planned_spectra(doc, DEMO_EXPOSURE_S, DEMO_GAP)
+    until = local_midnight_mjd(date.fromisoformat(DEMO_REPLAN_DAY), ZoneInfo(doc["site"]["timezone"]))
+    times = times[times + DEMO_EXPOSURE_S / 86400.0 <= until]
+    write_atomic(path, recordings_csv(times, DEMO_EXPOSURE_S), force)
 
 
 def run(args, console) -> int:
@@ -103,9 +139,13 @@ def run(args, console) -> int:
         task = progress.add_task("demo", total=len(stages))
         for what, argv, files in stages:  # a handful of stages
             progress.update(task, description=what)
-            sub_args = parser.parse_args(argv + (["--force"] if args.force else []))
             started = time.perf_counter()
-            COMMANDS[sub_args.command](sub_args, quiet_console())
+            for step in (argv if not isinstance(argv[0], str) else [argv]):  # a stage: one or a few
+                if callable(step):
+                    step(args.force)
+                    continue
+                sub_args = parser.parse_args(step + (["--force"] if args.force else []))
+                COMMANDS[sub_args.command](sub_args, quiet_console())
             written.append((what, files, time.perf_counter() - started))
             progress.advance(task)
     console.print(f"[bold]hiplan demo[/bold]: invented scenario, Hollowmere club, {DEMO_MONTH}, "
@@ -118,6 +158,31 @@ def run(args, console) -> int:
     summary = read_plan(out / "plan-hollowmere.json")["summary"]
     console.print(f"Plan: {summary['done_before']} → {summary['done_after']} of {summary['wanted_bins']} "
                   f"wanted 1° bins at {summary['target_minutes']:g} min depth, {summary['moves']} re-parks.")
+    _tally_note(console, out)
     console.print(f"Open {out / 'brief-hollowmere.html'} in a browser, or import "
                   f"{out / 'plan-hollowmere.ics'} into a calendar.")
     return 0
+
+
+def _tally_note(console, out: Path) -> None:
+    """The recordings stage in figures: the plan against the tally, and the re-plan."""
+    import json
+
+    from ..planfile import read_plan
+    doc = json.loads((out / "tally-hollowmere.json").read_text(encoding="utf-8"))
+    ag, at = doc["agreement"], doc["at_target"]
+    replan = read_plan(out / "replan-hollowmere.json")["summary"]
+    target = at["target_minutes"]
+    promised = {str(b["l_bin"]) for b in doc["per_bin"] if b["planned_min"] >= target}
+    short = (promised - {str(b) for b in at["bins"]}) & set(replan["depth_after_min"])
+    filled = {b for b in short if replan["depth_after_min"][b] >= target}
+    console.print(f"Recordings (synthetic, {DEMO_EXPOSURE_S:g} s spectra, the nights of "
+                  f"{' and '.join(DEMO_GAP)} left out): {doc['spectra']['read']} spectra, "
+                  f"{ag['recorded_min']:.0f} of {ag['planned_min']:.0f} planned minutes recorded, "
+                  f"{ag['missed_min']:.0f} min missed on {', '.join(ag['days_with_missed'])}; on the "
+                  f"{ag['days_complete']} days recorded in full, recorded and planned minutes agree "
+                  f"within {ag['max_day_difference_min']:.1f} min. Bins at target: {at['now']} "
+                  f"(the plan foresaw {at['planned_so_far']} by {doc['plan']['through']}).")
+    console.print(f"Re-plan from {DEMO_REPLAN_DAY}: {replan['done_before']} → {replan['done_after']} "
+                  f"wanted bins at target, {replan['moves']} re-park{'s' if replan['moves'] != 1 else ''}; "
+                  f"it brings {len(filled)} of the {len(short)} bins the gap left short to target.")

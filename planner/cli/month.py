@@ -19,9 +19,18 @@ def add_arguments(p) -> None:
     add_site(p)
     g = p.add_argument_group("period")
     g.add_argument("--month", help="calendar month YYYY-MM (local days at the site)")
-    g.add_argument("--start", help="first local day YYYY-MM-DD (instead of --month)")
+    g.add_argument("--start", help="first local day YYYY-MM-DD (instead of --month; with --keep the "
+                                   "first day planned anew)")
     g.add_argument("--days", type=number(int, "--days", 1, MAX_PLAN_DAYS),
                    help="number of days with --start (default 30)")
+    g.add_argument("--from-today", action="store_true",
+                   help="plan from today at the site (instead of --start) to the end of the "
+                        "period: --month's, the kept plan's, --days days, else this calendar month")
+    g.add_argument("--keep", metavar="PLAN.json",
+                   help="re-plan the rest of this earlier plan's period from --start DAY or "
+                        "--from-today: its days before DAY are kept as they were, the dish starts "
+                        "where it left it, its moves count toward --max-moves; give the logs of "
+                        "what was recorded (--log, e.g. from 'hiplan tally')")
     p.add_argument("--want", help="wanted longitude ranges, e.g. 30-90,120-140 (default all)")
     depth = p.add_mutually_exclusive_group()
     depth.add_argument("--target-minutes", type=number(float, "--target-minutes", 0, 1e5, lo_open=True),
@@ -71,25 +80,56 @@ def add_arguments(p) -> None:
     o.add_argument("--force", action="store_true", help="replace existing output files")
 
 
-def period_from(args, site) -> tuple[float, float, int, str]:
-    """(start_mjd, end_mjd, days, label) from --month or --start/--days."""
+def period_from(args, site, kept: dict | None = None) -> tuple[float, float, int, str]:
+    """(start_mjd, end_mjd, days, label) from --month or --start/--days, --from-today, or
+    the rest of a kept plan's period (``kept``: the plan --keep names)."""
     from ..timebase import check_supported, local_day_span, parse_day
+    from_today = getattr(args, "from_today", False)
+    if from_today and args.start:
+        raise UserError("give --start or --from-today, not both")
+    if kept is not None:
+        from ..replan import period
+        if args.month or args.days:
+            raise UserError("--keep: the period is the kept plan's; leave out --month and --days")
+        if not (from_today or args.start):
+            raise UserError("--keep needs the first day to plan anew: --start DAY or --from-today")
+        day = today_at(site) if from_today else parse_day(args.start, "--start")
+        return period(kept, site, day, args.keep, "--from-today" if from_today else "--start")
     if args.month and (args.start or args.days):
         raise UserError("give --month, or --start with --days, not both")
+    if from_today:
+        today = today_at(site)
+        if args.month:
+            first = check_supported(parse_month(args.month), "--month")
+            if not first <= today < _next_month(first):
+                raise UserError(f"--from-today: today ({today.isoformat()}) is not in --month "
+                                f"{args.month}")
+            days = (_next_month(first) - today).days
+        else:
+            days = args.days or (_next_month(today) - today).days
+        start_mjd, end_mjd = local_day_span(today, days, site.tz, "--from-today")
+        return start_mjd, end_mjd, days, today.isoformat()
     if args.month:
-        try:
-            year, month = (int(x) for x in args.month.split("-"))
-            first = date(year, month, 1)
-        except ValueError:
-            raise UserError(f"--month: '{args.month}' is not a month of the form YYYY-MM") from None
-        check_supported(first, "--month")
-        nxt = date(year + (month == 12), month % 12 + 1, 1)
-        days = (nxt - first).days
+        first = check_supported(parse_month(args.month), "--month")
+        days = (_next_month(first) - first).days
     else:
         first = parse_day(args.start, "--start") if args.start else today_at(site)
         days = args.days or 30
     start_mjd, end_mjd = local_day_span(first, days, site.tz, "--month" if args.month else "--start/--days")
     return start_mjd, end_mjd, days, first.isoformat()
+
+
+def parse_month(text: str) -> date:
+    """The first day of a month given as YYYY-MM."""
+    try:
+        year, month = (int(x) for x in text.split("-"))
+        return date(year, month, 1)
+    except ValueError:
+        raise UserError(f"--month: '{text}' is not a month of the form YYYY-MM") from None
+
+
+def _next_month(day: date) -> date:
+    return date(day.year + (day.month == 12), day.month % 12 + 1, 1)
 
 
 def build_plan(args, site):
@@ -102,8 +142,12 @@ def build_plan(args, site):
     from ..monthsearch import best_plan, tradeoff
     from ..obslog import coverage_minutes, read_logs
     from ..park import DEFAULT_TARGET_MINUTES, candidate_pointings, parse_want
-    from ..planfile import drift_plan_document
-    start_mjd, end_mjd, days, label = period_from(args, site)
+    from ..hidisc import DiscModel
+    from ..planexpect import add_drift_calibrations, add_drift_expectations
+    from ..planfile import drift_plan_document, read_plan
+    kept = read_plan(args.keep) if getattr(args, "keep", None) else None
+    start_mjd, end_mjd, days, label = period_from(args, site, kept)
+    first_day = date.fromisoformat(label)
     bw = site.rules.bin_width_deg
     want = parse_want(args.want, bw)
     done = coverage_minutes(read_logs(args.log), bw) if args.log else np.zeros(want.size)
@@ -112,7 +156,11 @@ def build_plan(args, site):
     avail, intervals = load_windows(args.windows, site, start_mjd, end_mjd)
     # As written (our window syntax), so the plan can be read back by the charts.
     windows_text = avail.normalised() if avail else []  # machine-readable (charts re-read it)
-    current = _start_setting(site, args)
+    current = _start_setting(site, args, kept, first_day)
+    max_moves = args.max_moves
+    if kept is not None and max_moves is not None:
+        from ..replan import kept_moves
+        max_moves = max(0, max_moves - kept_moves(kept, first_day))
     pointings = candidate_pointings(site, args.step, extra=(current,) if current else ())
     if not pointings:
         raise UserError(f"{site.source}: no declination is reachable with this dish's limits")
@@ -130,11 +178,12 @@ def build_plan(args, site):
     start_row = _start_row(current, result)
     goal = Goal(want=want, target_minutes=target, done_minutes=done)
     guard = sun_guard(result, enforce=not args.allow_sun_hazard)
-    if args.max_moves is not None and start_row is None and args.max_moves < 1:
-        raise UserError("--max-moves 0: the dish's current setting is unknown, so setting it is a "
-                        "move; give --start-dec or the site's [pointing], or allow a move")
+    if max_moves is not None and start_row is None and max_moves < 1:
+        raise UserError(f"--max-moves {args.max_moves}: the dish's current setting is unknown, so "
+                        "setting it is a move; give --start-dec or the site's [pointing], or "
+                        "allow a move" + (" (the kept plan's moves count too)" if kept else ""))
     plan, report = best_plan(result, goal, slots, start_row, args.repark_minutes,
-                             args.min_days_between_moves, guard, args.max_moves, args.optimize)
+                             args.min_days_between_moves, guard, max_moves, args.optimize)
     trade = (tradeoff(result, goal, slots, start_row, args.repark_minutes,
                       args.min_days_between_moves, guard) if args.tradeoff else None)
     settings = {
@@ -150,11 +199,19 @@ def build_plan(args, site):
         "alarm_minutes": args.alarm, "log": list(args.log or []),
         "max_moves": args.max_moves, "optimize_seconds": args.optimize,
     }
+    if kept is not None:
+        settings["keep"] = args.keep
     doc = drift_plan_document(plan, settings, model_from_name(args.rotation), args.record_in_windows)
+    # What the receiver should show: calibration passes as tasks, the expected spectra.
+    add_drift_calibrations(doc, plan, site, intervals if args.record_in_windows else None)
+    add_drift_expectations(doc, site, DiscModel(rotation=model_from_name(args.rotation)))
     doc["summary"]["upper_bound"] = report.upper_bound
     doc["summary"]["optimizer"] = report.record()
     if trade is not None:
         doc["summary"]["tradeoff"] = trade
+    if kept is not None:
+        from ..replan import merge
+        doc = merge(kept, doc, first_day, args.keep)
     return plan, doc
 
 
@@ -168,10 +225,16 @@ def _want_ranges(text):
     return out
 
 
-def _start_setting(site, args):
-    """Where the dish is parked when the period starts (--start-dec or the site's [pointing])."""
+def _start_setting(site, args, kept=None, first_day=None):
+    """Where the dish is parked when the period starts: --start-dec, else where a kept plan
+    left it, else the site's [pointing]."""
     from ..pointing import reachability_problem
-    current = current_setting(site, args.start_dec)
+    current = None
+    if kept is not None and args.start_dec is None:
+        from ..replan import kept_setting
+        current = kept_setting(kept, site, first_day)
+    if current is None:
+        current = current_setting(site, args.start_dec)
     if current is None:
         return None
     problem = reachability_problem(site, current)
@@ -204,6 +267,8 @@ def _chart_paths(chart: str):
 
 
 def run(args, console) -> int:
+    from pathlib import Path
+
     from ..report import to_json
     from ..render import month_renderable
     from ..site import load_site
@@ -215,7 +280,7 @@ def run(args, console) -> int:
     if args.format == "json" and not args.output and is_stdout(args.ics):
         raise UserError("--ics: '-' would put the calendar on standard output with the JSON plan "
                         "(--format json); give --ics a file name, or the plan -o FILE")
-    check_outputs(args, *outputs)
+    check_outputs(args, *outputs, inputs=[("plan file", Path(args.keep))] if args.keep else ())
     _, doc = build_plan(args, site)
     # Every output is built in memory first and then written together (all or none), so a
     # failure in the calendar or a chart leaves no plan file behind.

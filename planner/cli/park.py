@@ -34,6 +34,7 @@ def add_arguments(p) -> None:
 
 def run(args, console) -> int:
     import numpy as np
+    from ..calpasses import calibrator_passes, expected_pass_peaks_k
     from ..coverage import sweep
     from ..obslog import coverage_minutes, read_logs
     from ..park import advise, candidate_pointings, parse_want
@@ -62,8 +63,10 @@ def run(args, console) -> int:
                    args.lsr_def, night_sun_alt_deg=night_alt)
     approaches = sun_approaches(site, pointings, start_mjd, end_mjd, nodes=result.nodes)
     advice = advise(result, want, done, args.target_minutes, approaches)
+    passes = calibrator_passes(site, pointings, start_mjd, end_mjd, nodes=result.nodes)
+    peaks = expected_pass_peaks_k(site, pointings, passes, nodes=result.nodes)
     doc = park_document(result, advice, args.want, args.target_minutes, args.log, windows_text,
-                        night_kind if night_only else None)
+                        night_kind if night_only else None, (passes, peaks))
     # Charts and the main output are built first and written together: all or none.
     plots = _plot_files(plot_paths, result, advice, want, done, args, site) if plot_paths else []
     if args.format == "json":
