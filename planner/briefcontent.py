@@ -524,8 +524,11 @@ def _drift_day_row(day: dict, bin_width) -> Row:
     reasons = Counter(_text(s.get("reason")) for s in day.get("skipped") or ())
     skipped = tuple(f"{n} {SKIP_REASONS.get(r, r)}" for r, n in sorted(reasons.items())) or ("—",)
     style = "warn" if hazards else ("move" if moving else ("" if recordings else "idle"))
+    label = _day_label(day.get("date"), year=False)
+    if day.get("kept") is True:  # a re-planned plan's days before the re-plan: already past
+        label, style = f"{label} (past)", "idle"
     return Row((
-        (_day_label(day.get("date"), year=False),),
+        (label,),
         tuple(setting),
         move,
         tuple(recordings) or ("nothing to record",),
@@ -906,3 +909,4 @@ def chart_caption(key: str) -> str:
     return CHART_CAPTIONS.get(key, f"{key.capitalize()} chart.")
 
 
+from . import briefloop  # noqa: E402,F401  (registers its sections and cautions above)

@@ -60,6 +60,7 @@ class SimulatedClock:
             raise ValueError("speed must be positive")
         self.speed = float(speed)
         self._sleep, self._monotonic = sleep, monotonic
+        self.start_mjd = float(start_mjd)     # where it started (a dry run starts exactly here)
         self._anchor_mjd = float(start_mjd)
         self._anchor_real = monotonic()
 

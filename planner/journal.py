@@ -130,6 +130,7 @@ class RecordedInterval:
     exit_status: int | None
     files: tuple[str, ...]
     dry_run: bool
+    line: int = 0  # the journal line of its record_start (for messages)
 
     @property
     def minutes(self) -> float:
@@ -250,5 +251,6 @@ def read_journal(path) -> list[RecordedInterval]:
             **{key: _number(start, key, where) for key in (
                 "l_deg", "b_deg", "l_from_deg", "l_to_deg", "ra_deg", "dec_deg", "az_deg",
                 "el_deg", "read_az_deg", "read_el_deg", "freq_mhz")},
-            status=status, exit_status=exit_status, files=files, dry_run=dry_run))
+            status=status, exit_status=exit_status, files=files, dry_run=dry_run,
+            line=start["_line"]))
     return out

@@ -29,6 +29,9 @@ def add_arguments(p) -> None:
                         "or PLAN-brief.md with --markdown, e.g. plan.json -> plan-brief.html)")
     p.add_argument("--markdown", action="store_true",
                    help="Markdown instead of HTML (needed with '-o -' to print Markdown)")
+    p.add_argument("--tally", type=Path, metavar="TALLY.json",
+                   help="add \"What was recorded\": a tally of this plan's recordings "
+                        "('hiplan tally ... --plan PLAN.json --format json')")
     p.add_argument("--no-charts", action="store_true", help="leave the charts out")
     p.add_argument("--force", action="store_true", help="replace existing output files")
     p.epilog = ("Without -o the brief is written beside the plan (plan.json -> plan-brief.html); "
@@ -42,6 +45,38 @@ def read_plan(path: Path) -> dict:
     """Read a plan file: ``planfile.read_plan`` (one-line errors naming the file)."""
     from ..planfile import read_plan as read_plan_file
     return read_plan_file(path)
+
+
+def read_tally(path: Path, plan: dict) -> dict:
+    """A tally document made with this plan (``hiplan.tally/1`` with per-day figures);
+    one-line errors naming the file."""
+    import json
+    from ..briefloop import TALLY_SCHEMA
+    from ..inputs import read_input
+    from ..planfile import MAX_PLAN_BYTES
+    try:
+        doc = json.loads(read_input(path, "tally file", MAX_PLAN_BYTES).decode("utf-8-sig"))
+    except UnicodeDecodeError:
+        raise UserError(f"{path}: not UTF-8 text, so not a tally file") from None
+    except json.JSONDecodeError as exc:
+        raise UserError(f"{path}:{exc.lineno}: not valid JSON ({exc.msg}, column {exc.colno})") from None
+    except RecursionError:
+        raise UserError(f"{path}: not a tally file (its JSON is nested too deeply)") from None
+    if not isinstance(doc, dict) or doc.get("schema") != TALLY_SCHEMA:
+        raise UserError(f"{path}: not a tally file (expected schema {TALLY_SCHEMA!r}, "
+                        "from 'hiplan tally --format json')")
+    if not isinstance(doc.get("per_day"), list) or not isinstance(doc.get("plan"), dict):
+        raise UserError(f"{path}: this tally was made without --plan, so it has nothing to "
+                        "compare with the plan; tally again with --plan")
+    site, plan_site = (doc.get("site") or {}).get("name"), (plan.get("site") or {}).get("name")
+    if site != plan_site:
+        raise UserError(f"{path}: a tally for site {site!r}, but the plan is for {plan_site!r}")
+    period = plan.get("period") or {}
+    first, last = doc["plan"].get("first_day"), doc["plan"].get("last_day")
+    if (first, last) != (period.get("first_day_local"), period.get("last_day_local")):
+        raise UserError(f"{path}: a tally against a plan for {first} to {last}, but this plan "
+                        f"covers {period.get('first_day_local')} to {period.get('last_day_local')}")
+    return doc
 
 
 STDOUT = Path("-")
@@ -77,6 +112,10 @@ def chart_pngs(doc: dict) -> dict[str, bytes]:
         return {}
     out = {key: plan_chart_bytes(doc, func_name) for key, func_name in CHARTS.get(doc.get("kind"), ())
            if getattr(plots, func_name, None) is not None}
+    if isinstance(doc.get("recorded"), dict):
+        from ..briefloop import RECORDED_FIGURE
+        from .common import figure_bytes
+        out[RECORDED_FIGURE] = figure_bytes(plots.tally_chart(doc["recorded"]), "png")
     if getattr(plots, "expected_spectra_grid", None) is not None:
         out.update(spectrum_pngs(doc, plots.expected_spectra_grid))
     return out
@@ -128,6 +167,8 @@ def run(args, console) -> int:
     args.output = output_path(args.plan, args.output, args.markdown)
     check_outputs(args, args.output)  # before any work: refuse early, write nothing
     doc = with_expected(read_plan(args.plan))
+    if args.tally is not None:
+        doc = {**doc, "recorded": read_tally(args.tally, doc)}
     fmt = output_format(args.output, args.markdown)
     pngs = {} if args.no_charts else None
     if args.output is not None and fmt == "markdown":

@@ -248,7 +248,8 @@ def input_files(args, extra=()) -> list[tuple[str, Path]]:
     logs = getattr(args, "log", None)
     for path in ([logs] if isinstance(logs, (str, Path)) else logs or []):
         found.append(("observation log", Path(path)))
-    for attr, what in (("windows", "windows file"), ("targets", "target file"), ("plan", "plan file")):
+    for attr, what in (("windows", "windows file"), ("targets", "target file"), ("plan", "plan file"),
+                       ("tally", "tally file")):
         value = getattr(args, attr, None)
         if value:
             found.append((what, Path(str(value).strip())))

@@ -78,6 +78,10 @@ def steps(out: Path) -> list[tuple[str, list, list[Path]]]:
                              "-o", str(out / "survey-saltbush-ridge.ics")], [out / "survey-saltbush-ridge.ics"]),
         ("survey brief", ["brief", str(out / "survey-saltbush-ridge.json"),
                           "-o", str(out / "brief-saltbush-ridge.html")], [out / "brief-saltbush-ridge.html"]),
+        ("survey rehearsal on the rotator (dry run, nothing sent)",
+         ["drive", str(out / "survey-saltbush-ridge.json"), "--dry-run",
+          "--clock", "simulated:2027-02-28T13:00:00Z", "--journal", str(out / "drive-saltbush-ridge.jsonl")],
+         [out / "drive-saltbush-ridge.jsonl"]),
         ("LSR corrections", ["lsr", *school, "--start", DEMO_START, "--days", "1", "--step", "30",
                              "--format", "csv", "-o", str(out / "lsr-saltbush-ridge.csv")],
          [out / "lsr-saltbush-ridge.csv"]),
@@ -92,9 +96,11 @@ def steps(out: Path) -> list[tuple[str, list, list[Path]]]:
            "--log-out", str(out / "tally-hollowmere-log.csv")],
           ["month", *club, "--keep", str(plan), "--start", DEMO_REPLAN_DAY, *goals,
            "--log", str(out / "tally-hollowmere-log.csv"), *rota, "--max-moves", DEMO_MAX_MOVES,
-           "--output", str(out / "replan-hollowmere.json")]],
+           "--output", str(out / "replan-hollowmere.json")],
+          ["brief", str(out / "replan-hollowmere.json"), "--tally", str(out / "tally-hollowmere.json"),
+           "--no-charts", "-o", str(out / "brief-hollowmere-replan.md")]],
          [out / "recordings-hollowmere.csv", out / "tally-hollowmere.json", out / "tally-hollowmere-log.csv",
-          out / "replan-hollowmere.json"]),
+          out / "replan-hollowmere.json", out / "brief-hollowmere-replan.md"]),
     ]
     return stages
 

@@ -123,7 +123,9 @@ def run(args, console) -> int:
         out.flush()
 
     if args.dry_run:
-        clock = SimulatedClock(clock.now_mjd(), math.inf)
+        # from the simulated start itself: the time spent reading the plan must not show in
+        # the journal, so a rehearsal's journal is the same on every run
+        clock = SimulatedClock(clock.start_mjd if clock.simulated else clock.now_mjd(), math.inf)
         rotator = DryRunRotator(*park_position(site), on_send=lambda line: say(f"  would send: "
                                                                                 f"{line}"))
     else:

@@ -27,9 +27,13 @@ PROGRESS_FROM_FILES = 20
 
 
 def add_arguments(p) -> None:
-    p.add_argument("recordings", nargs="+", metavar="RECORDING",
+    p.add_argument("recordings", nargs="*", metavar="RECORDING",
                    help="recording files (.csv, .ecsv, .fits), folders of them, or patterns "
                         "such as 'spectra/2027-03-*.fits' (quoted: hiplan expands them)")
+    p.add_argument("--journal", action="append", metavar="JOURNAL.jsonl",
+                   help="a 'hiplan drive' journal: count what it recorded (one-minute spectra "
+                        "where the dish pointed; failed recordings left out); may be repeated, "
+                        "and mixed with recording files")
     add_site(p)
     add_pointing(p, "pointing of the parked dish, for recordings that give none")
     p.add_argument("--plan", metavar="PLAN.json",
@@ -100,10 +104,14 @@ def run(args, console) -> int:
     from ..recordings import find_recordings, read_recordings
     from ..site import load_site
     site = load_site(args.site)
-    files = find_recordings(args.recordings)
+    if not args.recordings and not args.journal:
+        raise UserError("give recording files or folders, or --journal JOURNAL.jsonl")
+    files = find_recordings(args.recordings) if args.recordings else []
+    journals = [Path(j) for j in args.journal or ()]
     chart = _chart_path(args)
     check_outputs(args, args.output, args.log_out, chart,
-                  inputs=[("recording", path) for path in files])
+                  inputs=[("recording", path) for path in files]
+                  + [("drive journal", path) for path in journals])
     if is_stdout(args.log_out) and not args.output and args.format != "table":
         raise UserError(f"--log-out -: standard output gets the tally (--format {args.format}); "
                         "give the log a file name, or the tally -o FILE")
@@ -117,7 +125,10 @@ def run(args, console) -> int:
     pointing = resolve_pointing(args, site) if _pointing_given(args) else None
     context, progress = _progress(console, len(files))
     with context:
-        spectra = read_recordings(files, progress)
+        spectra = read_recordings(files, progress) if files else None
+    failed = ()
+    if journals:
+        spectra, failed = _with_journals(spectra, journals, args.stamp)
     mid = tally.mid_mjd(spectra, args.stamp)
     setting = None
     if plan is not None:
@@ -139,10 +150,30 @@ def run(args, console) -> int:
         "pointing": (pointing.summary(site.dish.beamwidth_deg, rules.b_max_deg)
                      if pointing is not None else None),
     }
-    doc = tally.tally_document(site, files, spectra, result, settings, comparison)
+    doc = tally.tally_document(site, [*files, *journals], spectra, result, settings, comparison)
+    if journals:
+        doc["journal_failed"] = [{"journal": src, "recording": rec.recording, "block": rec.block,
+                                  "name": rec.name, "minutes": round(rec.minutes, 3),
+                                  "exit_status": rec.exit_status} for src, rec in failed]
+        if failed:
+            note(console, f"{len(failed)} failed recording{'s' if len(failed) != 1 else ''} in the "
+                          f"journal not counted ({round(sum(r.minutes for _, r in failed), 1)} min)")
     _write(args, console, doc, result, spectra, chart)
     _notes(console, doc, result, spectra)
     return 0
+
+
+def _with_journals(spectra, journals, stamp):
+    """The recordings plus the journals' pseudo-spectra, their stamps moved to ``stamp``'s
+    convention (the journal's mark the start of each exposure); and the failed recordings."""
+    from ..journaltally import join, journal_spectra
+    got = journal_spectra(journals)
+    extra = got.spectra
+    shift = {"start": 0.0, "middle": 0.5, "end": 1.0}[stamp]
+    if shift:
+        from dataclasses import replace
+        extra = replace(extra, time_mjd=extra.time_mjd + shift * extra.exposure_s / 86400.0)
+    return (extra if spectra is None else join(spectra, extra)), got.failed
 
 
 def _refuse_outside(spectra, mid, timeline, plan, src) -> None:
