@@ -302,13 +302,21 @@ TRADEOFF_CAPS = (0, 1, 2, 4, 8, None)
 
 
 def tradeoff(sweep, goal, slots, start_row: int | None, repark_minutes: float = 15.0,
-             min_days_between_moves: int = 1, guard=None) -> list[dict]:
+             min_days_between_moves: int = 1, guard=None, moves_before: int = 0) -> list[dict]:
     """Wanted bins at target for each move cap in ``TRADEOFF_CAPS`` (None: no cap), with the
-    moves used and the linear bound, each from the same greedy + local search."""
+    moves used and the linear bound, each from the same greedy + local search.
+
+    ``moves_before``: moves already made (a re-plan's kept days). Caps then count them, as
+    ``--max-moves`` does, and caps they already exceed are left out; ``moves`` stays the moves
+    of the plan itself, as the plan summary's ``moves``.
+    """
     out = []
     for cap in TRADEOFF_CAPS:  # six short optimisations
+        if cap is not None and cap < moves_before:
+            continue
+        left = None if cap is None else cap - moves_before
         plan, report = best_plan(sweep, goal, slots, start_row, repark_minutes,
-                                 min_days_between_moves, guard, cap)
+                                 min_days_between_moves, guard, left)
         out.append({"max_moves": cap, "bins": report.bins, "moves": report.moves,
                     "upper_bound": report.upper_bound})
     return out

@@ -98,6 +98,31 @@ def test_kept_moves_count_against_the_cap(trip, capsys):
     assert {d["park"]["dec_deg"] for d in new_days} == {plan["days"][7]["park"]["dec_deg"]}
 
 
+def test_tradeoff_counts_the_kept_moves(trip, capsys):
+    """The moves-versus-bins table of a re-plan: caps count the kept days' moves (caps they
+    already exceed are left out), and each row is the plan --max-moves would give."""
+    made = replan.kept_moves(trip["plan"], date(2027, 3, 9))
+    out = trip["folder"] / "trade.json"
+    code, _, err = _run(capsys, "month", "--keep", trip["plan_path"], "--start", REPLAN_DAY,
+                        "--want", WANT, "--log", trip["folder"] / "log.csv", "--tradeoff",
+                        "--format", "json", "-o", out)
+    assert code == 0, err
+    table = read_plan(out)["summary"]["tradeoff"]
+    caps = [row["max_moves"] for row in table]
+    assert all(cap is None or cap >= made for cap in caps) and None in caps
+    # caps count the kept moves (as --max-moves does); moves are the re-plan's own (as summary)
+    assert all(row["max_moves"] is None or row["moves"] + made <= row["max_moves"] for row in table)
+    capped = trip["folder"] / "capped-again.json"
+    cap = min(c for c in caps if c is not None)
+    code, _, err = _run(capsys, "month", "--keep", trip["plan_path"], "--start", REPLAN_DAY,
+                        "--want", WANT, "--log", trip["folder"] / "log.csv", "--max-moves", cap,
+                        "--format", "json", "-o", capped)
+    assert code == 0, err
+    summary = read_plan(capped)["summary"]
+    row = table[caps.index(cap)]
+    assert row["bins"] == summary["done_after"] and row["moves"] == summary["moves"]
+
+
 def test_kept_setting_is_the_last_days_park(club, trip):
     plan = trip["plan"]
     setting = replan.kept_setting(plan, club, date(2027, 3, 9))

@@ -158,9 +158,12 @@ def build_plan(args, site):
     windows_text = avail.normalised() if avail else []  # machine-readable (charts re-read it)
     current = _start_setting(site, args, kept, first_day)
     max_moves = args.max_moves
-    if kept is not None and max_moves is not None:
+    moves_before = 0
+    if kept is not None:
         from ..replan import kept_moves
-        max_moves = max(0, max_moves - kept_moves(kept, first_day))
+        moves_before = kept_moves(kept, first_day)
+    if max_moves is not None:
+        max_moves = max(0, max_moves - moves_before)
     pointings = candidate_pointings(site, args.step, extra=(current,) if current else ())
     if not pointings:
         raise UserError(f"{site.source}: no declination is reachable with this dish's limits")
@@ -185,7 +188,7 @@ def build_plan(args, site):
     plan, report = best_plan(result, goal, slots, start_row, args.repark_minutes,
                              args.min_days_between_moves, guard, max_moves, args.optimize)
     trade = (tradeoff(result, goal, slots, start_row, args.repark_minutes,
-                      args.min_days_between_moves, guard) if args.tradeoff else None)
+                      args.min_days_between_moves, guard, moves_before) if args.tradeoff else None)
     settings = {
         "b_max_deg": result.b_max_deg, "bin_width_deg": bw,
         "want": _want_ranges(args.want), "target_minutes": round(target, 3),
