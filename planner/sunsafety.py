@@ -305,7 +305,8 @@ def slew_sun_sep_deg(from_az_deg, from_el_deg, to_az_deg, to_el_deg, rate_az_deg
 
 
 def sun_safe_stow(site: Site) -> Pointing:
-    """A stow position the Sun never approaches: on the meridian toward the elevated pole.
+    """A stow position the Sun never approaches: on the meridian toward the elevated pole
+    (a transit dish that cannot face the pole: as high as it goes on its own side).
 
     Elevation = |latitude| (the pole itself), raised to the horizon limit there and
     capped at the dish's maximum; the pole lies more than 66.5 deg from the Sun
@@ -314,6 +315,11 @@ def sun_safe_stow(site: Site) -> Pointing:
     """
     az = 0.0 if site.latitude_deg >= 0 else 180.0
     dish = site.dish
+    if dish.mount == "transit" and dish.facing not in ("either", "north" if az == 0.0 else "south"):
+        # A transit dish that cannot face the pole: as high as it goes on its own side, the
+        # nearest it comes to the pole (dec = |lat| - (90 - alt) there). At the zenith the Sun
+        # stays >= |lat| - 23.44 deg away; a site where that is too little sets [dish] park_*.
+        return from_altaz(site, dish.elevation_max_deg, 180.0 - az, given_as="altaz")
     alt = min(max(abs(site.latitude_deg), float(dish.horizon_limit_deg(az))), dish.elevation_max_deg)
     return from_altaz(site, alt, az, given_as="altaz")
 

@@ -186,6 +186,19 @@ def test_slew_path_separation(rng):
     assert np.all(np.abs(ours - brute) < 0.3)
 
 
+def test_stow_of_a_dish_that_cannot_face_the_pole(club):
+    """A transit dish that only faces the equator stows on its own side, as high as it goes:
+    at Hollowmere's zenith the Sun stays >= 53.4 - 23.44 = 30.0 deg away (astropy)."""
+    mjd = JUNE + np.arange(0, 365, 1.0) + 0.5  # local noon: the Sun on the meridian, at its highest
+    for lat, facing, az in ((53.42, "south", 180.0), (-34.9, "north", 0.0)):
+        site = dataclasses.replace(club, latitude_deg=lat, longitude_deg=0.0,
+                                   dish=dataclasses.replace(club.dish, mount="transit", facing=facing))
+        stow = sun_safe_stow(site)
+        assert stow.az_deg == pytest.approx(az % 360.0) and stow.alt_deg == site.dish.elevation_max_deg
+        sep = _astropy_sun_sep(site, stow, mjd)
+        assert sep.min() > abs(lat) - 23.44 - 0.5 and sep.min() > site.rules.sun_hazard_deg, (lat, sep.min())
+
+
 def test_stow_is_far_from_the_sun_all_year(club, rng):
     mjd = JUNE + np.arange(0, 365, 3.0) + 0.37
     for lat in (-78.0, -34.9, -5.0, 0.0, 12.0, 53.4, 78.2):
