@@ -26,12 +26,12 @@ from .earth import EarthNodes, earth_nodes, spherical_deg, unit_vectors
 from .pointing import Pointing
 from .site import Site
 from .skytrack import FixedBeams
+from .sunsafety import golden_min, wrap180
 from .timebase import SECONDS_PER_DAY
 
 SIDEREAL_DEG_PER_DAY = 360.98564736629  # Earth rotation angle rate (IERS Conventions 2010)
 DEC_MARGIN_DEG = 1.0
 REFINE_HALF_WINDOW_MIN = 20.0
-_GOLDEN = (np.sqrt(5.0) - 1.0) / 2.0
 
 
 @dataclass(frozen=True)
@@ -53,25 +53,6 @@ class CalibratorPasses:
 
     def names(self, idx) -> list[str]:
         return [self.regions[int(k)].name for k in np.atleast_1d(self.region[idx])]
-
-
-def _wrap180(x):
-    return (np.asarray(x) + 180.0) % 360.0 - 180.0
-
-
-def _golden_min(func, lo, hi, tol_days):
-    a, b = lo.copy(), hi.copy()
-    c, d = b - _GOLDEN * (b - a), a + _GOLDEN * (b - a)
-    fc, fd = func(c), func(d)
-    while a.size and np.max(b - a) > tol_days:
-        left = fc < fd
-        b, a = np.where(left, d, b), np.where(left, a, c)
-        new = np.where(left, b - _GOLDEN * (b - a), a + _GOLDEN * (b - a))
-        f_new = func(new)
-        c, d = np.where(left, new, d), np.where(left, c, new)
-        fc, fd = np.where(left, f_new, fd), np.where(left, fc, f_new)
-    x = 0.5 * (a + b)
-    return x, func(x)
 
 
 def calibrator_passes(site: Site, pointings: list[Pointing], start_mjd: float, end_mjd: float,
@@ -99,14 +80,14 @@ def calibrator_passes(site: Site, pointings: list[Pointing], start_mjd: float, e
         t = t.ravel()
         for _ in range(2):  # fixed-point corrections to equal right ascension
             ra, _ = spherical_deg(beams.locate(t, row_grid)[1])
-            t = t + _wrap180(ra_r - ra) / SIDEREAL_DEG_PER_DAY
+            t = t + wrap180(ra_r - ra) / SIDEREAL_DEG_PER_DAY
         target = unit_vectors(ra_r, dec_r)
 
         def sep(m, rows_=row_grid, target_=target):
             return separation_deg(beams.locate(m, rows_)[1], target_)
 
         half = REFINE_HALF_WINDOW_MIN / 1440.0
-        t, s = _golden_min(sep, t - half, t + half, 1.0 / SECONDS_PER_DAY)
+        t, s = golden_min(sep, t - half, t + half, 1.0 / SECONDS_PER_DAY)
         keep = (s <= limit) & (t >= start_mjd) & (t < end_mjd)
         rows_all.append(row_grid[keep])
         regs_all.append(np.full(int(keep.sum()), k))

@@ -122,7 +122,7 @@ class SunApproaches:
         return sep, when
 
 
-def _wrap180(angle_deg):
+def wrap180(angle_deg):
     return (np.asarray(angle_deg) + 180.0) % 360.0 - 180.0
 
 
@@ -130,7 +130,7 @@ def sun_hour_angle_deg(site: Site, mjd_utc, nodes: EarthNodes | None = None) -> 
     """The Sun's topocentric hour angle of date (deg, west positive, [-180, 180))."""
     state = earth_state(np.atleast_1d(np.asarray(mjd_utc, dtype=float)), nodes)
     ra_cirs, _ = spherical_deg(gcrs_to_cirs(sun_direction(state), state))
-    return _wrap180(np.degrees(state.era_rad) + site.longitude_deg - ra_cirs)
+    return wrap180(np.degrees(state.era_rad) + site.longitude_deg - ra_cirs)
 
 
 def _hour_angle_instants(site: Site, ha_deg: float, lo_mjd: float, hi_mjd: float,
@@ -140,11 +140,11 @@ def _hour_angle_instants(site: Site, ha_deg: float, lo_mjd: float, hi_mjd: float
     lead = (ha_deg - sun_hour_angle_deg(site, lo_mjd, nodes)[0]) % 360.0 / 360.0
     t = lo_mjd + lead + np.arange(int(np.ceil(hi_mjd - lo_mjd)) + 1)
     for _ in range(3):  # fixed-point corrections; see the module docstring
-        t = t + _wrap180(ha_deg - sun_hour_angle_deg(site, t, nodes)) / 360.0
+        t = t + wrap180(ha_deg - sun_hour_angle_deg(site, t, nodes)) / 360.0
     return t[(t >= lo_mjd) & (t <= hi_mjd)]
 
 
-def _golden_min(func, lo: np.ndarray, hi: np.ndarray, tol_days: float):
+def golden_min(func, lo: np.ndarray, hi: np.ndarray, tol_days: float):
     """Minimum (argmin, value) of unimodal ``func`` on [lo, hi], vectorized."""
     a, b = lo.copy(), hi.copy()
     c, d = b - _GOLDEN * (b - a), a + _GOLDEN * (b - a)
@@ -203,7 +203,7 @@ def sun_approaches(site: Site, pointings: list[Pointing], start_mjd: float, end_
         refine[order[np.unique(row[order], return_index=True)[1]]] = True
     idx = np.flatnonzero(refine)
     if idx.size:
-        t[idx], sep[idx] = _golden_min(lambda m: sep_at(m, idx), t[idx] - _REFINE_HALF_WINDOW_D,
+        t[idx], sep[idx] = golden_min(lambda m: sep_at(m, idx), t[idx] - _REFINE_HALF_WINDOW_D,
                                        t[idx] + _REFINE_HALF_WINDOW_D, _ONE_SECOND_D)
 
     enter = np.full(row.size, np.nan)
@@ -245,7 +245,7 @@ def meridian_angle_deg(alt_deg, az_deg) -> np.ndarray:
     Only meaningful for meridian pointings (azimuth 0 or 180).
     """
     alt = np.asarray(alt_deg, dtype=float)
-    north = np.abs(_wrap180(np.asarray(az_deg, dtype=float))) < 90.0
+    north = np.abs(wrap180(np.asarray(az_deg, dtype=float))) < 90.0
     return np.where(north, 180.0 - alt, alt)
 
 
@@ -343,7 +343,7 @@ def move_sun_sep_deg(site: Site, start: Pointing, ends: list[Pointing], t0_mjd: 
                                          meridian_angle_deg(alt, az), t0_mjd, t1_mjd)
     n = max(2, int(np.ceil((t1_mjd - t0_mjd) * 1440.0)) + 1)
     _, s_alt, s_az = _sun_enu(site, np.linspace(t0_mjd, t1_mjd, n))
-    to_az = start.az_deg + _wrap180(az - start.az_deg)  # the short way round
+    to_az = start.az_deg + wrap180(az - start.az_deg)  # the short way round
     sep = slew_sun_sep_deg(start.az_deg, start.alt_deg, to_az[:, None], alt[:, None],
                            float(dish.slew_az_deg_s), float(dish.slew_el_deg_s),
                            s_alt[None, :], s_az[None, :])
@@ -388,7 +388,7 @@ def move_safe_matrix(site: Site, pointings: list[Pointing], t0_mjd: float, t1_mj
         dist = np.where(within, off_plane, ends).min(axis=-1)
         ok = dist >= limit
     else:
-        to_az = az[:, None] + _wrap180(az[None, :] - az[:, None])  # the short way round
+        to_az = az[:, None] + wrap180(az[None, :] - az[:, None])  # the short way round
         lo_az = np.minimum(az[:, None], to_az)[..., None]
         span = np.abs(to_az - az[:, None])[..., None]
         lo_el = np.minimum(alt[:, None], alt[None, :])[..., None]

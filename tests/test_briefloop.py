@@ -1,16 +1,14 @@
 """The brief's loop with the dish: the drive caution, a re-planned plan's past days, and
 "What was recorded" from a tally (``brief --tally``), with its refusals."""
 import json
-from datetime import date, datetime
+from datetime import datetime
 
 import pytest
 
+from loop_trip import round_trip
 from planner.briefcontent import build_brief
 from planner.briefloop import TALLY_SCHEMA
 from planner.cli import main
-from planner.planfile import read_plan
-from planner.recordings import planned_spectra, recordings_csv
-from planner.timebase import local_midnight_mjd
 
 WANT = "120-140"
 GAP = ("2027-03-03",)
@@ -19,25 +17,9 @@ REPLAN_DAY = "2027-03-05"
 
 @pytest.fixture(scope="module")
 def trip(tmp_path_factory, club):
-    """An 8-day plan, one-minute recordings of it to day 4 missing the night of GAP, their
-    tally against the plan, and the re-plan from day 5."""
-    folder = tmp_path_factory.mktemp("loop")
-    plan_path = folder / "plan.json"
-    assert main(["month", "--start", "2027-03-01", "--days", "8", "--want", WANT,
-                 "--format", "json", "-o", str(plan_path)]) == 0
-    plan = read_plan(plan_path)
-    start = planned_spectra(plan, 60.0, GAP)
-    start = start[start + 60.0 / 86400 <= local_midnight_mjd(date.fromisoformat(REPLAN_DAY), club.tz)]
-    (folder / "rec.csv").write_text(recordings_csv(start, 60.0))
-    assert main(["tally", str(folder / "rec.csv"), "--plan", str(plan_path), "--format", "json",
-                 "-o", str(folder / "tally.json"), "--log-out", str(folder / "log.csv")]) == 0
-    assert main(["month", "--keep", str(plan_path), "--start", REPLAN_DAY, "--want", WANT,
-                 "--log", str(folder / "log.csv"), "--format", "json",
-                 "-o", str(folder / "replan.json")]) == 0
-    return {"plan": plan, "plan_path": plan_path, "folder": folder,
-            "tally_path": folder / "tally.json",
-            "tally": json.loads((folder / "tally.json").read_text()),
-            "replan": read_plan(folder / "replan.json")}
+    """An 8-day plan, recordings to day 4 missing the night of GAP, their tally against the
+    plan, and the re-plan from day 5 (tests/loop_trip.py)."""
+    return round_trip(tmp_path_factory.mktemp("loop"), club, 8, WANT, GAP, REPLAN_DAY)
 
 
 def _section(brief, section_id):

@@ -5,13 +5,12 @@ from datetime import date
 
 import pytest
 
+from loop_trip import round_trip
 from planner import replan
 from planner.cli import main
 from planner.cli import month as month_cli
 from planner.errors import UserError
 from planner.planfile import read_plan
-from planner.recordings import planned_spectra, recordings_csv
-from planner.timebase import local_midnight_mjd
 
 WANT = "120-140,155-165"
 GAP = ("2027-03-03", "2027-03-04")
@@ -26,24 +25,9 @@ def _run(capsys, *argv):
 
 @pytest.fixture(scope="module")
 def trip(tmp_path_factory, club):
-    """The round trip: a 16-day plan; recordings that follow it to day 8 in one-minute
-    spectra but miss the nights of GAP; the tally of them; the re-plan from day 9."""
-    folder = tmp_path_factory.mktemp("trip")
-    plan_path = folder / "plan.json"
-    assert main(["month", "--start", "2027-03-01", "--days", "16", "--want", WANT,
-                 "--format", "json", "-o", str(plan_path)]) == 0
-    plan = read_plan(plan_path)
-    start = planned_spectra(plan, 60.0, GAP)
-    start = start[start + 60.0 / 86400 <= local_midnight_mjd(date.fromisoformat(REPLAN_DAY), club.tz)]
-    (folder / "rec.csv").write_text(recordings_csv(start, 60.0))
-    assert main(["tally", str(folder / "rec.csv"), "--plan", str(plan_path), "--format", "json",
-                 "-o", str(folder / "tally.json"), "--log-out", str(folder / "log.csv")]) == 0
-    assert main(["month", "--keep", str(plan_path), "--start", REPLAN_DAY, "--want", WANT,
-                 "--log", str(folder / "log.csv"), "--format", "json",
-                 "-o", str(folder / "replan.json")]) == 0
-    return {"plan": plan, "plan_path": plan_path, "folder": folder,
-            "tally": json.loads((folder / "tally.json").read_text()),
-            "replan": read_plan(folder / "replan.json")}
+    """A 16-day plan, recordings to day 8 missing the nights of GAP, their tally, the re-plan
+    from day 9 (tests/loop_trip.py)."""
+    return round_trip(tmp_path_factory.mktemp("trip"), club, 16, WANT, GAP, REPLAN_DAY)
 
 
 def _bins_at(doc, key, target):
