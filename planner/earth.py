@@ -118,15 +118,18 @@ def _interp_nodes(x: np.ndarray, nodes: EarthNodes) -> np.ndarray:
     return out
 
 
-def earth_state(mjd_utc, nodes: EarthNodes | None = None) -> EarthState:
+def earth_state(mjd_utc, nodes: EarthNodes | None = None, ut1: bool = True) -> EarthState:
     """Earth rotation angle, GCRS->CIRS matrix, geocentre velocity and Sun at ``mjd_utc``.
 
     Pass ``nodes`` (from ``earth_nodes``) covering the times to reuse them across calls.
+    ``ut1=False`` takes the rotation angle at UTC instead of UT1: |UT1-UTC| < 0.9 s turns
+    the sky by under 14 arcsec, nothing for coarse uses (chart shading), and no
+    Earth-orientation table is read.
     """
     mjd = np.atleast_1d(np.asarray(mjd_utc, dtype=float))
     if nodes is None:
         nodes = earth_nodes(float(np.min(mjd)), float(np.max(mjd)))
-    era = erfa.era00(MJD_ZERO_JD, mjd + dut1_s(mjd) / SECONDS_PER_DAY)
+    era = erfa.era00(MJD_ZERO_JD, mjd + (dut1_s(mjd) / SECONDS_PER_DAY if ut1 else 0.0))
     table = _interp_nodes(mjd, nodes)
     return EarthState(
         mjd_utc=mjd, era_rad=era, c2i=table[:, :9].reshape(-1, 3, 3),

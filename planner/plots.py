@@ -25,6 +25,7 @@ from zoneinfo import ZoneInfo
 import numpy as np
 from matplotlib import dates as mdates
 from matplotlib.cm import ScalarMappable
+from matplotlib.collections import PatchCollection
 from matplotlib.colors import Normalize
 from matplotlib.figure import Figure
 from matplotlib.lines import Line2D
@@ -411,7 +412,8 @@ def _night_intervals_mjd(site: dict, start_mjd: float, end_mjd: float) -> np.nda
     mjd = np.arange(start_mjd, end_mjd + step, step)
     place = _Place(float(site["latitude_deg"]), float(site["longitude_deg"]),
                    float(site.get("height_m", 0.0)))
-    alt = sun_altitude_deg(place, earth_state(mjd)) - SUNSET_ALTITUDE_DEG
+    # UTC for UT1: shading to the minute needs no Earth-orientation table
+    alt = sun_altitude_deg(place, earth_state(mjd, ut1=False)) - SUNSET_ALTITUDE_DEG
     dark = alt < 0.0
     change = np.flatnonzero(dark[1:] != dark[:-1])
     frac = alt[change] / (alt[change] - alt[change + 1])
@@ -476,12 +478,20 @@ def month_chart(plan: dict) -> Figure:
     ax = fig.subplots()
     x_lo, x_hi = float(_ROW_START_H), float(_ROW_START_H + 24)
 
-    def place(start_wall, end_wall, y_off, height, **style):
+    # Rectangles are gathered per kind and drawn as one collection each (hundreds of
+    # separate patches cost far more to draw and save); each keeps its own colours.
+    kinds: dict[str, tuple[list, dict]] = {}
+
+    def place(start_wall, end_wall, y_off, height, gid="other", **style):
         made = []
         for row, x0, x1 in _wall_pieces(start_wall, end_wall):
             i = (row - first_row).days
             if 0 <= i < rows:
-                made.append(ax.add_patch(Rectangle((x0, i + y_off), x1 - x0, height, **style)))
+                made.append(Rectangle((x0, i + y_off), x1 - x0, height, **style))
+        if made:
+            key = f"{gid}|{style.get('zorder')}|{style.get('hatch')}"
+            kinds.setdefault(key, ([], {"gid": gid, "zorder": style.get("zorder", 1),
+                                        "hatch": style.get("hatch")}))[0].extend(made)
         return made
 
     legend: dict[str, object] = {}
@@ -490,8 +500,8 @@ def month_chart(plan: dict) -> Figure:
     hatch = {"facecolor": "none", "edgecolor": "0.75", "hatch": "xx", "lw": 0, "zorder": 0.5}
     row0 = datetime.combine(first_row, time(_ROW_START_H))
     row_end = datetime.combine(last_row + timedelta(days=1), time(_ROW_START_H))
-    if place(row0, period_wall[0], -0.5, 1.0, **hatch) + place(period_wall[1], row_end, -0.5, 1.0,
-                                                               **hatch):
+    if place(row0, period_wall[0], -0.5, 1.0, gid="outside", **hatch) + place(
+            period_wall[1], row_end, -0.5, 1.0, gid="outside", **hatch):
         legend["outside"] = Patch(facecolor="none", edgecolor="0.6", hatch="xx",
                                   label="outside the plan period")
 
@@ -520,17 +530,17 @@ def month_chart(plan: dict) -> Figure:
         for skip in day.get("skipped") or []:
             span = _local_span(skip["start_local"], skip["end_local"])
             if skip.get("reason") == "sun":
-                place(*span, -0.25, 0.5, facecolor=_GREY, lw=0, zorder=2)
+                place(*span, -0.25, 0.5, facecolor=_GREY, lw=0, zorder=2, gid="skipped-sun")
                 legend["sun"] = Patch(facecolor=_GREY, label="skipped: too near the Sun")
             else:
-                place(*span, -0.04, 0.08, facecolor="0.6", lw=0, zorder=2)
+                place(*span, -0.04, 0.08, facecolor="0.6", lw=0, zorder=2, gid="skipped-other")
                 legend["other"] = Line2D([], [], color="0.6", lw=2.5,
                                          label="skipped: daylight, windows or not wanted")
         for rec in day.get("recordings") or []:
             span = _local_span(rec["start_local"], rec["end_local"])
             colour = cmap.to_rgba(_mid_longitude_deg(rec["l_start_deg"], rec["l_end_deg"]))
             place(*span, -0.25, 0.5, facecolor=colour, edgecolor="black", lw=0.4, zorder=3,
-                  gid=f"recording:{rec['start_utc']}")
+                  gid="recording")
             legend["rec"] = Patch(facecolor=cmap.to_rgba(180.0), edgecolor="black", lw=0.4,
                                   label="recording (colour: galactic longitude)")
         park = day.get("park") or {}
@@ -549,6 +559,9 @@ def month_chart(plan: dict) -> Figure:
                   zorder=4.5, gid="sun-hazard")
             legend["hazard"] = Patch(facecolor="none", edgecolor=OKABE_ITO["vermillion"], hatch="\\\\",
                                      label="SUN HAZARD: cover the feed or move the dish first")
+
+    for rects, style in kinds.values():
+        ax.add_collection(PatchCollection(rects, match_original=True, **style))
 
     labels = []
     for i in range(rows):

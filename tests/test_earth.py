@@ -41,3 +41,19 @@ def test_long_spans_quadratic_on_two_day_nodes(rng):
         # Module docstring: under 0.01 arcsec (5e-8 rad) and 3e-4 km/s (0.3 m/s; the LSR
         # tests allow 5 m/s); the Sun direction to 5e-6 AU (1 arcsec).
         assert mat < 5e-8 and vel < 3e-4 and sun < 5e-6, (mat, vel, sun)
+
+
+def test_rotation_at_utc_reads_no_earth_orientation(monkeypatch):
+    """``ut1=False``: the rotation angle at UTC, without the EOP table (chart shading). It
+    differs from the UT1 one by UT1-UTC times the Earth's rate (IERS: |UT1-UTC| < 0.9 s)."""
+    mjd = np.linspace(61000.0, 61030.0, 50)
+    with_ut1 = earth_state(mjd)
+    import planner.earth as earth_module
+
+    def no_table(_):
+        raise AssertionError("the Earth-orientation table was read")
+    monkeypatch.setattr(earth_module, "dut1_s", no_table)
+    at_utc = earth_state(mjd, ut1=False)
+    assert np.allclose(at_utc.c2i, with_ut1.c2i) and np.allclose(at_utc.sun_from_earth_au, with_ut1.sun_from_earth_au)
+    turn_s = np.angle(np.exp(1j * (with_ut1.era_rad - at_utc.era_rad))) / (2 * np.pi * 1.00273781191135448) * 86400
+    assert np.all(np.abs(turn_s) < 0.9) and np.ptp(turn_s) > 0  # moved, by under 0.9 s of time
