@@ -124,7 +124,7 @@ class Step:
 
     @property
     def records(self) -> bool:
-        return self.kind in ("target", "reference", "drift")
+        return self.kind in ("target", "reference", "calibration", "drift")
 
     def position_at(self, mjd_utc: float) -> tuple[float, float]:
         return self.track.at(mjd_utc) if self.track is not None else (self.az_deg, self.el_deg)

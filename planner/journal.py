@@ -112,7 +112,7 @@ class RecordedInterval:
     recording: int
     block: int | None
     name: str | None
-    kind: str  # target | reference | drift
+    kind: str  # target | reference | calibration | drift
     start_mjd: float
     end_mjd: float
     l_deg: float | None

@@ -23,6 +23,7 @@ from dataclasses import replace
 
 import numpy as np
 
+from .calsurvey import place_calibrations
 from .doppler import velocity_corrections
 from .errors import UserError
 from .galactic import galactic_to_icrs_deg
@@ -51,7 +52,7 @@ __all__ = [
     "repeats_done_from_log", "rest_sun_margin_deg", "samples_needed", "slew_sun_margin_deg",
     "survey_document", "tuning_record",
     "REASON_DAYLIGHT", "REASON_DONE", "REASON_MOON", "REASON_NEVER_LONG", "REASON_NEVER_UP",
-    "REASON_REFERENCE", "REASON_SUN", "REASON_TIME", "REASON_WINDOWS",
+    "REASON_REFERENCE", "REASON_SUN", "REASON_TIME", "REASON_WINDOWS", "REASON_CALIBRATION",
 ]
 
 REASON_NEVER_UP = "never rises above the elevation limit"
@@ -180,14 +181,33 @@ def plan_survey(site: Site, targets, settings: SurveySettings,
     dispatcher = _Dispatcher(site, targets, settings, vis, ref_table, ref_rows, wanted)
     start_az, start_el = _start_drive(site, model)
     blocks = dispatcher.run(start_az, start_el)
+    dispatched = _scheduled(blocks, len(targets))
+    missing: list[str] = []
+    if settings.calibrate_minutes:
+        blocks, missing = place_calibrations(site, model, blocks, settings, vis,
+                                             settings.calibrate_minutes)
     blocks = annotate_blocks(site, targets, blocks, settings)
-    scheduled = np.zeros(len(targets), dtype=int)
+    scheduled = _scheduled(blocks, len(targets))
+    unscheduled = tuple(
+        replace(u, reason=f"{REASON_CALIBRATION} ({u.repeats_scheduled} of {u.repeats_wanted} "
+                          "repeats scheduled)")
+        if dispatched[i] > scheduled[i] else u
+        for u, i in ((u, [t.name for t in targets].index(u.name))
+                     for u in _reasons(dispatcher, vis, targets, wanted, done, scheduled)))
+    return SurveyPlan(site=site, settings=settings, targets=targets, blocks=tuple(blocks),
+                      unscheduled=unscheduled, done_before=tuple(int(x) for x in done),
+                      calibration_missing=tuple(missing))
+
+
+REASON_CALIBRATION = "its time went to a session's calibration (--calibrate)"
+
+
+def _scheduled(blocks, n: int) -> np.ndarray:
+    counts = np.zeros(n, dtype=int)
     for b in blocks:
         if b.kind == "target":
-            scheduled[b.target] += 1
-    unscheduled = _reasons(dispatcher, vis, targets, wanted, done, scheduled)
-    return SurveyPlan(site=site, settings=settings, targets=targets, blocks=tuple(blocks),
-                      unscheduled=unscheduled, done_before=tuple(int(x) for x in done))
+            counts[b.target] += 1
+    return counts
 
 
 def annotate_blocks(site: Site, targets, blocks: list[Block], settings: SurveySettings):
@@ -196,7 +216,7 @@ def annotate_blocks(site: Site, targets, blocks: list[Block], settings: SurveySe
     LSR corrections are sampled each minute through the block (end included), all
     blocks in one ``velocity_corrections`` call.
     """
-    observed = [i for i, b in enumerate(blocks) if b.kind in ("target", "reference")]
+    observed = [i for i, b in enumerate(blocks) if b.kind in ("target", "reference", "calibration")]
     if not observed:
         return list(blocks)
     mjd_parts, ra_parts, dec_parts, counts = [], [], [], []
@@ -215,7 +235,8 @@ def annotate_blocks(site: Site, targets, blocks: list[Block], settings: SurveySe
     offsets = np.concatenate([[0], np.cumsum(counts)[:-1]])
     lo = np.minimum.reduceat(corr, offsets)
     hi = np.maximum.reduceat(corr, offsets)
-    target_blocks = [i for i in observed if blocks[i].kind == "target"]
+    # a calibration block is tuned for its own region's line, as a target is
+    target_blocks = [i for i in observed if blocks[i].kind in ("target", "calibration")]
     env = hi_velocity_envelope(np.array([blocks[i].l_deg for i in target_blocks]),
                                np.array([blocks[i].b_deg for i in target_blocks]),
                                settings.rotation)
@@ -226,11 +247,12 @@ def annotate_blocks(site: Site, targets, blocks: list[Block], settings: SurveySe
     for i in observed:  # per block: scalar tuning advice
         b = blocks[i]
         corr_lo, corr_hi = (float(v) for v in range_of[i])
-        if b.kind == "target":
+        if b.kind in ("target", "calibration"):
             j = env_of[i]
             tuning = tuning_advice(float(env.v_min_kms[j]), float(env.v_max_kms[j]), corr_lo,
                                    corr_hi, site.receiver)
-            last_tuning[b.target] = tuning
+            if b.kind == "target":
+                last_tuning[b.target] = tuning
         else:
             tuning = last_tuning.get(b.target)
         out[i] = replace(b, lsr_corr_min_kms=corr_lo, lsr_corr_max_kms=corr_hi, tuning=tuning)

@@ -46,6 +46,7 @@ class SurveySettings:
     rotation_name: str = "iau1985"
     alarm_minutes: float = 15.0
     step_s: float = STEP_S
+    calibrate_minutes: float | None = None  # survey --calibrate: a standard region at each session end
 
 
 @dataclass(frozen=True)
@@ -56,7 +57,7 @@ class Block:
     RA and Dec are None and its target index is -1.
     """
 
-    kind: str  # target | reference | slew | stow
+    kind: str  # target | reference | calibration | slew | stow
     name: str
     target: int  # index of the target this block serves, -1 for stows
     start_mjd: float
@@ -78,6 +79,8 @@ class Block:
     lsr_corr_min_kms: float | None = None
     lsr_corr_max_kms: float | None = None
     tuning: TuningAdvice | None = None
+    # calibration blocks: published_peak_k, expected_peak_k (K) and the operator's action
+    calibration: dict | None = None
 
     @property
     def minutes(self) -> float:
@@ -105,6 +108,7 @@ class SurveyPlan:
     blocks: tuple[Block, ...]
     unscheduled: tuple[Unscheduled, ...]
     done_before: tuple[int, ...]  # repeats credited from the observation log, per target
+    calibration_missing: tuple[str, ...] = ()  # session ends left without a calibration, why
 
     def completed(self) -> np.ndarray:
         """Target integrations scheduled, per target."""
@@ -161,7 +165,8 @@ def block_record(b: Block, tz) -> dict:
         "sun_sep_min_deg": _r(b.sun_sep_min_deg, 2), "moon_sep_min_deg": _r(b.moon_sep_min_deg, 2),
         "lsr_corr_min_kms": _r(b.lsr_corr_min_kms, 3), "lsr_corr_max_kms": _r(b.lsr_corr_max_kms, 3),
         "repeat": b.repeat, "reference_for": b.reference_for,
-        "tuning": tuning_record(b.tuning) if b.kind in ("target", "reference") else None,
+        "tuning": tuning_record(b.tuning) if b.kind in ("target", "reference", "calibration") else None,
+        **(b.calibration or {}),
     }
 
 
@@ -169,7 +174,7 @@ def plan_summary(plan: SurveyPlan) -> dict:
     """Totals: targets, integrations wanted/scheduled, minutes on targets, references, slews, stows."""
     wanted = sum(max(t.repeats - d, 0) for t, d in zip(plan.targets, plan.done_before))
     done = plan.completed()
-    minutes = {"target": 0.0, "reference": 0.0, "slew": 0.0, "stow": 0.0}
+    minutes = {"target": 0.0, "reference": 0.0, "slew": 0.0, "stow": 0.0, "calibration": 0.0}
     for b in plan.blocks:
         minutes[b.kind] += b.minutes
     weight = sum(t.priority * int(n) for t, n in zip(plan.targets, done))
@@ -185,7 +190,10 @@ def plan_summary(plan: SurveyPlan) -> dict:
         "slew_minutes": round(float(minutes["slew"]), 2),
         "stows": sum(1 for b in plan.blocks if b.kind == "stow"),
         "stow_minutes": round(float(minutes["stow"]), 2),
+        "calibrations": sum(1 for b in plan.blocks if b.kind == "calibration"),
+        "calibration_minutes": round(float(minutes["calibration"]), 2),
         "done_before": int(sum(plan.done_before)),
+        "calibration_missing": list(plan.calibration_missing),
     }
 
 
@@ -212,6 +220,7 @@ def survey_document(plan: SurveyPlan, period: dict) -> dict:
             "reference": None if s.reference is None else s.reference.describe(),
             "reference_minutes": s.reference_minutes,
             "step_s": s.step_s,
+            "calibrate_minutes": s.calibrate_minutes,
             # The drive (encoder) azimuth range, which may exceed 360 deg: the cable wrap.
             "azimuth_min_deg": plan.site.dish.azimuth_min_deg,
             "azimuth_max_deg": plan.site.dish.azimuth_max_deg,

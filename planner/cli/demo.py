@@ -71,7 +71,7 @@ def steps(out: Path) -> list[tuple[str, list, list[Path]]]:
         ("plane crossings", ["crossings", *club, "--start", DEMO_START, "--days", "7", "--format", "csv",
                              "-o", str(out / "crossings-hollowmere.csv")], [out / "crossings-hollowmere.csv"]),
         ("survey schedule", ["survey", *school, "--grid", "l=240..340/10,b=-4..4/4", "--start", DEMO_START,
-                             "--days", "3", "--minutes", "15", "--night-only", "--format", "json",
+                             "--days", "3", "--minutes", "15", "--night-only", "--calibrate", "--format", "json",
                              "-o", str(out / "survey-saltbush-ridge.json")],
          [out / "survey-saltbush-ridge.json"]),
         ("survey calendar", ["calendar", str(out / "survey-saltbush-ridge.json"),

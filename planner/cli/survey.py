@@ -8,11 +8,16 @@ from datetime import datetime
 from ..errors import UserError
 from ..targets import GRID_EXAMPLE
 from .common import (add_alarm, add_log, add_lsr_definition, add_night, add_output, add_period,
-                     add_rotation, add_site, check_outputs, emit, night_setting, number,
+                     add_rotation, add_site, check_outputs, emit, night_setting, note, number,
                      period_span)
 
 NAME = "survey"
 HELP = "schedule pointed integrations of a target grid or list (steerable dish)"
+
+
+# As ``planner.calsurvey.DEFAULT_MINUTES`` (kept here so building the parser loads no
+# computation; tests/test_calsurvey.py checks they agree).
+CALIBRATE_DEFAULT_MIN = 5.0
 
 
 def add_arguments(p) -> None:
@@ -44,6 +49,12 @@ def add_arguments(p) -> None:
                    help="least distance from the Sun (deg)")
     c.add_argument("--moon-sep", type=number(float, "--moon-sep", 0, 180),
                    help="least distance from the Moon (deg; 0 = no Moon rule)")
+    g.add_argument("--calibrate", nargs="?", const=CALIBRATE_DEFAULT_MIN, metavar="MINUTES",
+                   type=number(float, "--calibrate", 1, 120),
+                   help="add a calibration on an IAU standard HI region (S7, S8, S9: visible, "
+                        "Sun-safe, nearest) at the start and end of each session, MINUTES long "
+                        f"(default {CALIBRATE_DEFAULT_MIN:g}: the regions are bright); at a "
+                        "session's edge it may take the time of up to two integrations")
     add_rotation(p)
     add_lsr_definition(p)
     add_alarm(p)
@@ -88,8 +99,11 @@ def run(args, console) -> int:
         night_only=night_only, night_sun_alt_deg=night_alt, night=night_kind,
         sun_hazard_deg=site.rules.sun_hazard_deg, availability=availability, reference=reference,
         reference_minutes=args.reference_minutes, lsr_definition=args.lsr_def, rotation=model,
-        rotation_name=args.rotation.strip().lower(), alarm_minutes=args.alarm)
+        rotation_name=args.rotation.strip().lower(), alarm_minutes=args.alarm,
+        calibrate_minutes=args.calibrate)
     plan = plan_survey(site, targets, settings, done)
+    for line in plan.calibration_missing:
+        note(console, f"--calibrate: {line}")
     doc = survey_document(plan, period_summary(start_mjd, end_mjd, site.tz))
     if args.format == "json":
         emit(args, console, to_json(doc))
@@ -189,6 +203,11 @@ def survey_renderable(doc: dict):
                    "(safe from the Sun)." if summary.get("stows") else "."))
     if summary["done_before"]:
         foot.append(f" {summary['done_before']} integrations already in the log.")
+    if settings.get("calibrate_minutes"):
+        foot.append(f"\n{summary['calibrations']} calibration{'s' if summary['calibrations'] != 1 else ''} "
+                    f"on standard regions ({summary['calibration_minutes']:.0f} min)"
+                    + (f"; {len(summary['calibration_missing'])} session ends without one."
+                       if summary["calibration_missing"] else "."))
     if settings.get("azimuth_min_deg") is not None:
         foot.append(f"\nDrive az: the angle to set on the azimuth drive, on the cable wrap "
                     f"{settings['azimuth_min_deg']:g}…{settings['azimuth_max_deg']:g}°; the sky "
