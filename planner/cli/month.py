@@ -1,8 +1,8 @@
 """``hiplan month``: plan a period of drift scans to fill galactic-longitude gaps."""
 from __future__ import annotations
 
+from dataclasses import dataclass
 from datetime import date
-
 
 from ..errors import UserError
 from ..outputs import is_stdout, write_all
@@ -134,23 +134,56 @@ def _next_month(day: date) -> date:
 
 def build_plan(args, site):
     """Everything from options to the plan document (shared with the demo)."""
+    from ..monthsearch import best_plan, tradeoff
+    problem = prepare(args, site)
+    plan, report = best_plan(problem.sweep, problem.goal, problem.slots, problem.start_row,
+                             args.repark_minutes, args.min_days_between_moves, problem.guard,
+                             problem.max_moves, args.optimize)
+    trade = (tradeoff(problem.sweep, problem.goal, problem.slots, problem.start_row,
+                      args.repark_minutes, args.min_days_between_moves, problem.guard,
+                      problem.moves_before) if args.tradeoff else None)
+    return plan, plan_document(args, site, problem, plan, report, trade)
+
+
+@dataclass(frozen=True)
+class MonthProblem:
+    """What the month options ask for, ready to plan (``prepare``)."""
+
+    sweep: object  # coverage.SweepResult of the candidate settings, per passage
+    goal: object  # month.Goal
+    slots: list  # month.MoveSlot per local day
+    start_row: int | None
+    guard: object  # monthsafety.SunGuard
+    max_moves: int | None  # left for this period (a re-plan's kept moves taken off)
+    moves_before: int
+    kept: dict | None
+    first_day: date
+    intervals: object  # operator windows as MJD intervals (or None)
+    windows_text: list
+    night: tuple  # (night_only, night_sun_alt_deg, night name)
+    target_minutes: float
+
+
+def prepare(args, site, done_minutes=None) -> MonthProblem:
+    """The month problem of ``args`` at ``site``: period, candidate settings and their
+    passages, goal, move slots, the dish's start setting and the Sun's rules.
+    ``done_minutes`` (per bin) replaces the depth read from ``--log``."""
     import numpy as np
     from ..coverage import sweep
-    from ..galaxy import model_from_name
     from ..month import Goal, minutes_for_rms, move_slots
     from ..monthsafety import sun_guard
-    from ..monthsearch import best_plan, tradeoff
     from ..obslog import coverage_minutes, read_logs
     from ..park import DEFAULT_TARGET_MINUTES, candidate_pointings, parse_want
-    from ..hidisc import DiscModel
-    from ..planexpect import add_drift_calibrations, add_drift_expectations
-    from ..planfile import drift_plan_document, read_plan
+    from ..planfile import read_plan
     kept = read_plan(args.keep) if getattr(args, "keep", None) else None
     start_mjd, end_mjd, days, label = period_from(args, site, kept)
     first_day = date.fromisoformat(label)
     bw = site.rules.bin_width_deg
     want = parse_want(args.want, bw)
-    done = coverage_minutes(read_logs(args.log), bw) if args.log else np.zeros(want.size)
+    if done_minutes is not None:
+        done = np.asarray(done_minutes, dtype=float)
+    else:
+        done = coverage_minutes(read_logs(args.log), bw) if args.log else np.zeros(want.size)
     target = (minutes_for_rms(site, args.target_rms) if args.target_rms
               else (args.target_minutes or DEFAULT_TARGET_MINUTES))
     avail, intervals = load_windows(args.windows, site, start_mjd, end_mjd)
@@ -185,16 +218,25 @@ def build_plan(args, site):
         raise UserError(f"--max-moves {args.max_moves}: the dish's current setting is unknown, so "
                         "setting it is a move; give --start-dec or the site's [pointing], or "
                         "allow a move" + (" (the kept plan's moves count too)" if kept else ""))
-    plan, report = best_plan(result, goal, slots, start_row, args.repark_minutes,
-                             args.min_days_between_moves, guard, max_moves, args.optimize)
-    trade = (tradeoff(result, goal, slots, start_row, args.repark_minutes,
-                      args.min_days_between_moves, guard, moves_before) if args.tradeoff else None)
+    return MonthProblem(result, goal, slots, start_row, guard, max_moves, moves_before, kept,
+                        first_day, intervals, windows_text, (night_only, night_alt, night_kind),
+                        target)
+
+
+def plan_document(args, site, problem: MonthProblem, plan, report, trade=None) -> dict:
+    """The ``hiplan.plan/1`` document of a planned month (``prepare``'s problem)."""
+    from ..galaxy import model_from_name
+    from ..hidisc import DiscModel
+    from ..planexpect import add_drift_calibrations, add_drift_expectations
+    from ..planfile import drift_plan_document
+    night_only, night_alt, night_kind = problem.night
+    result = problem.sweep
     settings = {
-        "b_max_deg": result.b_max_deg, "bin_width_deg": bw,
-        "want": _want_ranges(args.want), "target_minutes": round(target, 3),
+        "b_max_deg": result.b_max_deg, "bin_width_deg": site.rules.bin_width_deg,
+        "want": _want_ranges(args.want), "target_minutes": round(problem.target_minutes, 3),
         "target_rms_k": args.target_rms, "night_only": night_only,
         "night": night_kind if night_only else None,
-        "record_in_windows": args.record_in_windows, "windows": windows_text,
+        "record_in_windows": args.record_in_windows, "windows": problem.windows_text,
         "max_reparks_per_day": 1, "min_days_between_moves": args.min_days_between_moves,
         "repark_minutes": args.repark_minutes, "sun_min_sep_deg": site.rules.sun_min_sep_deg,
         "sun_hazard_deg": site.rules.sun_hazard_deg, "allow_sun_hazard": args.allow_sun_hazard,
@@ -202,11 +244,13 @@ def build_plan(args, site):
         "alarm_minutes": args.alarm, "log": list(args.log or []),
         "max_moves": args.max_moves, "optimize_seconds": args.optimize,
     }
+    kept = problem.kept
     if kept is not None:
         settings["keep"] = args.keep
     doc = drift_plan_document(plan, settings, model_from_name(args.rotation), args.record_in_windows)
     # What the receiver should show: calibration passes as tasks, the expected spectra.
-    add_drift_calibrations(doc, plan, site, intervals if args.record_in_windows else None)
+    intervals = problem.intervals if args.record_in_windows else None
+    add_drift_calibrations(doc, plan, site, intervals)
     add_drift_expectations(doc, site, DiscModel(rotation=model_from_name(args.rotation)))
     doc["summary"]["upper_bound"] = report.upper_bound
     doc["summary"]["optimizer"] = report.record()
@@ -214,8 +258,8 @@ def build_plan(args, site):
         doc["summary"]["tradeoff"] = trade
     if kept is not None:
         from ..replan import merge
-        doc = merge(kept, doc, first_day, args.keep)
-    return plan, doc
+        doc = merge(kept, doc, problem.first_day, args.keep)
+    return doc
 
 
 def _want_ranges(text):
