@@ -909,4 +909,4 @@ def chart_caption(key: str) -> str:
     return CHART_CAPTIONS.get(key, f"{key.capitalize()} chart.")
 
 
-from . import briefloop  # noqa: E402,F401  (registers its sections and cautions above)
+from . import briefloop, briefnetwork  # noqa: E402,F401  (register their sections above)

@@ -115,10 +115,10 @@ def test_brief_calendar_and_table_give_the_same_times(demo):
             assert f"MOVE {_hhmm(start)}–{_hhmm(end)}" in page
             assert f"{_hhmm(start)}–{_hhmm(end)}" in table
     assert checked == sum(len(d["recordings"]) for d in drift["days"]) > 40
-    # Survey: every target block, brief against calendar.
+    # Survey: every target, reference and calibration block, brief against calendar.
     events = _calendar_spans(survey)
     page = brief.brief_markdown(survey)
-    blocks = [b for b in survey["blocks"] if b["kind"] in ("target", "reference")]
+    blocks = [b for b in survey["blocks"] if b["kind"] in ("target", "reference", "calibration")]
     for block in blocks:
         start, end = shown_span(datetime.fromisoformat(block["start_local"]),
                                 datetime.fromisoformat(block["end_local"]))

@@ -12,12 +12,12 @@ import sys
 
 from .. import __version__
 from ..errors import UserError
-from . import (brief, calendar, crossings, demo, drive, lsr, month, park, planlog, sites, spectrum,
+from . import (brief, calendar, crossings, demo, drive, lsr, month, network, park, planlog, sites, spectrum,
                survey, tally, tune)
 from .common import Parser, TerminalConsole
 
-COMMAND_MODULES = (demo, park, month, survey, calendar, brief, planlog, tally, crossings, lsr, tune, spectrum,
-                   drive, sites)
+COMMAND_MODULES = (demo, park, month, network, survey, calendar, brief, planlog, tally, crossings, lsr,
+                   tune, spectrum, drive, sites)
 COMMANDS = {m.NAME: m.run for m in COMMAND_MODULES}
 
 

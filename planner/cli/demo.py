@@ -26,6 +26,12 @@ DEMO_MAX_MOVES = "4"
 # spectra, except two nights the receiver was off; then the rest of March is re-planned.
 DEMO_REPLAN_DAY = "2027-03-20"
 DEMO_GAP = ("2027-03-05", "2027-03-06")
+# The network stage: the club's want plus the southern plane only the other two can reach.
+DEMO_NETWORK_WANT = "30-90,120-200,250-340"
+NETWORK_FILES = ("network.json", "network.png") + tuple(
+    f"{slug}{ext}" for slug in ("hollowmere-amateur-radio-astronomy-club",
+                                "saltbush-ridge-secondary-school", "lantern-hill-science-club")
+    for ext in (".json", ".ics", "-brief.html"))
 DEMO_EXPOSURE_S = 120.0
 
 
@@ -89,6 +95,14 @@ def steps(out: Path) -> list[tuple[str, list, list[Path]]]:
          ["spectrum", *club, "--l", "132", "--b", "-1", "--time", "2027-03-02T03:37:00Z",
           "-o", str(out / "spectrum-hollowmere.txt"), "--plot", str(out / "spectrum-hollowmere.png")],
          [out / "spectrum-hollowmere.txt", out / "spectrum-hollowmere.png"]),
+        ("three stations planned together (network)",
+         ["network", "--station", f"hollowmere,max-moves={DEMO_MAX_MOVES}" + (
+             f",log={ex / 'observation-log.csv'},windows={ex / 'windows.txt'}" if ex is not None else ""),
+          "--station", f"saltbush-ridge,max-moves={DEMO_MAX_MOVES}",
+          "--station", f"lantern-hill,max-moves={DEMO_MAX_MOVES}",
+          "--start", DEMO_START, "--days", "14", "--want", DEMO_NETWORK_WANT,
+          "--output-dir", str(out / "network")],
+         [out / "network" / name for name in NETWORK_FILES]),
         ("recordings tallied, rest of the month re-planned",
          [lambda force: _recordings(plan, out / "recordings-hollowmere.csv", force),
           ["tally", str(out / "recordings-hollowmere.csv"), *club, "--plan", str(plan),
@@ -165,6 +179,12 @@ def run(args, console) -> int:
     console.print(f"Plan: {summary['done_before']} → {summary['done_after']} of {summary['wanted_bins']} "
                   f"wanted 1° bins at {summary['target_minutes']:g} min depth, {summary['moves']} re-parks.")
     _tally_note(console, out)
+    import json
+    net = json.loads((out / "network" / "network.json").read_text(encoding="utf-8"))
+    console.print(f"Network (three invented stations, 14 days, l {DEMO_NETWORK_WANT}): "
+                  f"{net['done_after']} wanted bins at target planned together against "
+                  f"{net['done_alone']} with each station alone (bound {net['upper_bound']}, "
+                  f"of {net['wanted_bins']}); see {out / 'network' / 'network.png'}.")
     console.print(f"Open {out / 'brief-hollowmere.html'} in a browser, or import "
                   f"{out / 'plan-hollowmere.ics'} into a calendar.")
     return 0

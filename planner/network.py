@@ -1,0 +1,128 @@
+"""Several stations, one plane: month plans chosen together so the network fills the most bins.
+
+Each station has its own month problem (``monthmodel.SlotModel``: its sites's passages, move
+slots, Sun rules and move cap); all share one goal: wanted longitude bins and a target depth,
+the depth of a bin being the logs' minutes plus every station's. A plan is one row per
+interval per station (``monthmodel``).
+
+* ``alone``: the baseline, what happens without coordination: each station plans the whole
+  want by itself (greedy + local search, ``monthsearch``), counting only the logs.
+* ``coordinate``: block-coordinate local search. In turn, each station's plan is improved
+  (``monthsearch.improve``) against a goal whose logged minutes include the other stations'
+  current contributions, so every accepted change improves the network's objective (bins at
+  target, then capped progress) with the others fixed; cycles repeat until no station
+  changes. Two starts: the baseline, and stations planned one after another each counting
+  those before it; the better result is kept, and it is never worse than the baseline.
+  ``exact_seconds`` adds the integer program (``monthsearch.optimize``) for each station in a
+  last pass, the others fixed.
+* ``upper_bound``: no joint plan brings more wanted bins to target. In each interval a station
+  holds one setting, so it adds at most the most any one Sun-safe setting gives each bin there;
+  summed over intervals and stations (passages over more than one slot edge added in full) on
+  top of the logs, a bin that cannot reach the target that way cannot reach it at all.
+
+Minutes per bin, (B,) arrays over all 1-degree (bin-width) bins.
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass, replace
+
+import numpy as np
+
+from .monthmodel import Prefix, SlotModel, exact_depth, score_of
+from .monthsearch import MAX_ROUNDS, improve, optimize
+
+MAX_CYCLES = 8  # coordination passes over the stations at most (a count: same plan everywhere)
+
+
+def contribution(m: SlotModel, rows: np.ndarray) -> np.ndarray:
+    """Minutes per bin a station's plan adds (its exact accounting, the logs left out)."""
+    return exact_depth(m, Prefix(m), rows) - m.done
+
+
+@dataclass(frozen=True)
+class NetworkScore:
+    bins: int  # wanted bins at the target depth
+    progress: float  # sum over wanted bins of min(depth, target) / target
+    moves: int  # all stations together
+
+    @property
+    def key(self) -> tuple:
+        return (self.bins, round(self.progress, 6), -self.moves)
+
+
+def network_depth(models: list[SlotModel], rows: list[np.ndarray]) -> np.ndarray:
+    """Depth per bin of the network: the logs plus every station's minutes."""
+    return models[0].done + sum(contribution(m, r) for m, r in zip(models, rows))
+
+
+def network_score(models: list[SlotModel], rows: list[np.ndarray]) -> NetworkScore:
+    m0 = models[0]
+    depth = network_depth(models, rows)
+    moves = sum(score_of(m, m.done, r).moves for m, r in zip(models, rows))
+    want = depth[m0.want]
+    return NetworkScore(int(np.count_nonzero(want >= m0.target - 1e-9)),
+                        float((np.minimum(want, m0.target) / m0.target).sum()), int(moves))
+
+
+def _with_others(m: SlotModel, others_min: np.ndarray) -> SlotModel:
+    return replace(m, done=m.done + others_min)
+
+
+def _cycle(models: list[SlotModel], rows: list[np.ndarray], max_rounds: int) -> list[np.ndarray]:
+    """Improve each station in turn against the others' minutes until none changes."""
+    rows = [r.copy() for r in rows]
+    contrib = [contribution(m, r) for m, r in zip(models, rows)]
+    for _ in range(MAX_CYCLES):
+        changed = False
+        for s, m in enumerate(models):  # stations
+            others = sum((c for t, c in enumerate(contrib) if t != s), np.zeros_like(m.done))
+            new = improve(_with_others(m, others), rows[s], max_rounds)
+            if not np.array_equal(new, rows[s]):
+                rows[s], contrib[s], changed = new, contribution(m, new), True
+        if not changed:
+            break
+    return rows
+
+
+def coordinate(models: list[SlotModel], alone_rows: list[np.ndarray],
+               sequential_rows: list[np.ndarray] | None = None,
+               exact_seconds: float | None = None,
+               max_rounds: int = MAX_ROUNDS) -> list[np.ndarray]:
+    """The joint plan (module docstring): never worse than ``alone_rows`` by the network's
+    objective. ``sequential_rows``: a second start (stations planned one after another)."""
+    starts = [sequential_rows] if sequential_rows is not None else [alone_rows]
+    best, best_score = alone_rows, network_score(models, alone_rows)
+    for start in starts:
+        rows = _cycle(models, start, max_rounds)
+        score = network_score(models, rows)
+        if score.key > best_score.key:
+            best, best_score = rows, score
+    if exact_seconds:
+        best = [r.copy() for r in best]
+        share = exact_seconds / len(models)
+        for s, m in enumerate(models):  # one exact pass, the others fixed
+            others = sum((contribution(models[t], best[t]) for t in range(len(models)) if t != s),
+                         np.zeros_like(m.done))
+            rows, _ = optimize(_with_others(m, others), best[s], share, max_rounds)
+            trial = best[:s] + [rows] + best[s + 1:]
+            if network_score(models, trial).key > network_score(models, best).key:
+                best = trial
+    return best
+
+
+def upper_bound(models: list[SlotModel], achieved: int) -> int:
+    """Wanted bins no joint plan can exceed (module docstring); never below ``achieved``."""
+    m0 = models[0]
+    most = m0.done.copy()
+    for m in models:
+        per_interval = np.where(m.unsafe[:, :, None], 0.0, m.hold + m.span)  # (R, Q, B)
+        most += per_interval.max(axis=0).sum(axis=0)
+        for _, _, _, _, minutes in m.multi:  # rare: counted in full
+            most += minutes
+    bins = int(np.count_nonzero(most[m0.want] >= m0.target - 1e-9))
+    return max(bins, achieved)
+
+
+def bins_at_target(m: SlotModel, depth: np.ndarray) -> np.ndarray:
+    """Indices of the wanted bins at the target depth."""
+    return np.flatnonzero(m.want & (depth >= m.target - 1e-9))
