@@ -29,9 +29,12 @@ from dataclasses import dataclass, replace
 import numpy as np
 
 from .monthmodel import Prefix, SlotModel, exact_depth, score_of
-from .monthsearch import MAX_ROUNDS, improve, optimize
+from .monthsearch import improve, optimize
 
 MAX_CYCLES = 8  # coordination passes over the stations at most (a count: same plan everywhere)
+# Local-search rounds per station per pass: each pass starts from a good plan and the next
+# pass goes on from there, so few rounds are needed (a count, as monthsearch.MAX_ROUNDS).
+NETWORK_ROUNDS = 10
 
 
 def contribution(m: SlotModel, rows: np.ndarray) -> np.ndarray:
@@ -87,7 +90,7 @@ def _cycle(models: list[SlotModel], rows: list[np.ndarray], max_rounds: int) -> 
 def coordinate(models: list[SlotModel], alone_rows: list[np.ndarray],
                sequential_rows: list[np.ndarray] | None = None,
                exact_seconds: float | None = None,
-               max_rounds: int = MAX_ROUNDS) -> list[np.ndarray]:
+               max_rounds: int = NETWORK_ROUNDS) -> list[np.ndarray]:
     """The joint plan (module docstring): never worse than ``alone_rows`` by the network's
     objective. ``sequential_rows``: a second start (stations planned one after another)."""
     starts = [sequential_rows] if sequential_rows is not None else [alone_rows]
@@ -108,6 +111,18 @@ def coordinate(models: list[SlotModel], alone_rows: list[np.ndarray],
             if network_score(models, trial).key > network_score(models, best).key:
                 best = trial
     return best
+
+
+def one_after_another(models: list[SlotModel], greedy_rows, max_rounds: int = NETWORK_ROUNDS):
+    """Each station's plan in turn, improved with the minutes of those before it counted as
+    done (``greedy_rows``: a station's greedy plan given the same; a callable (s, done_min))."""
+    rows, before = [], np.zeros_like(models[0].done)
+    for s, m in enumerate(models):  # stations
+        counted = _with_others(m, before)
+        r = improve(counted, greedy_rows(s, counted.done), max_rounds)
+        rows.append(r)
+        before = before + contribution(m, r)
+    return rows
 
 
 def upper_bound(models: list[SlotModel], achieved: int) -> int:

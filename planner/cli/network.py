@@ -122,11 +122,11 @@ def run(args, console) -> int:
     import numpy as np
 
     from ..ical import calendar_bytes, plan_calendar
-    from ..month import Goal, plan_from_parkings
+    from ..month import Goal, plan_from_parkings, plan_month
     from ..monthmodel import build_model, parkings_of_rows, rows_of_plan, score_of
     from ..monthsearch import OptimizeReport, best_plan
     from ..network import (bins_at_target, contribution, coordinate, network_depth,
-                           network_score, upper_bound)
+                           network_score, one_after_another, upper_bound)
     from ..obslog import coverage_minutes, read_logs
     from ..outputs import write_all
     from ..report import to_json
@@ -187,15 +187,14 @@ def run(args, console) -> int:
                                  ns.min_days_between_moves, p.guard, p.max_moves)
         alone_rows.append(rows_of_plan(m, plan.parkings))
         alone_reports.append(report)
-    seq_rows, before = [], np.zeros_like(done)
-    for p, m, ns in zip(problems, models, station_args):
-        goal = Goal(want=p.goal.want, target_minutes=p.goal.target_minutes,
-                    done_minutes=done + before)
-        plan, _ = best_plan(p.sweep, goal, p.slots, p.start_row, ns.repark_minutes,
-                            ns.min_days_between_moves, p.guard, p.max_moves)
-        rows = rows_of_plan(m, plan.parkings)
-        seq_rows.append(rows)
-        before = before + contribution(m, rows)
+    def greedy(s, done_min):
+        p, ns = problems[s], station_args[s]
+        goal = Goal(want=p.goal.want, target_minutes=p.goal.target_minutes, done_minutes=done_min)
+        plan = plan_month(p.sweep, goal, p.slots, p.start_row, ns.repark_minutes,
+                          ns.min_days_between_moves, p.guard, p.max_moves)
+        return rows_of_plan(models[s], plan.parkings)
+
+    seq_rows = one_after_another(models, greedy)
     joint = coordinate(models, alone_rows, seq_rows, args.optimize)
     alone, after = network_score(models, alone_rows), network_score(models, joint)
     bound = upper_bound(models, after.bins)
