@@ -60,8 +60,10 @@ _PERMUTE_UP_TO = 6
 
 
 def _wanted_only(m: SlotModel) -> SlotModel:
-    """The model restricted to the wanted bins (the only ones the objective reads)."""
-    keep = np.flatnonzero(m.want)
+    """The model restricted to the wanted bins still short of the target: the only ones whose
+    count or capped progress a plan can change (a bin already at target stays there, adding a
+    constant to both), so every comparison the search makes is the same."""
+    keep = np.flatnonzero(m.want & (m.done < m.target - 1e-9))
     return replace(m, hold=m.hold[:, :, keep], fresh=m.fresh[:, :, keep],
                    span=m.span[:, :, keep], span_late=m.span_late[:, :, keep],
                    multi=tuple((r, a, c, late, minutes[keep]) for r, a, c, late, minutes in m.multi),

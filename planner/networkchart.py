@@ -31,13 +31,25 @@ def network_chart(summary: dict) -> Figure:
     by_station = np.array([b["by_station_min"] for b in bins]).reshape(len(bins), -1).T
     fig = Figure(figsize=(13.0, 6.0), layout="constrained")
     ax, strip = fig.subplots(2, 1, sharex=True, height_ratios=(5, 1))
-    bottom = logged.copy()
-    ax.bar(l_deg, logged, width=width, color=_LOG_GREY, lw=0, label="already logged", gid="logged")
+    # One step outline per layer over all bins (zero outside the wanted ones): a few artists
+    # instead of a bar per bin and station, which matters for networks of many stations.
+    n_all = int(round(360.0 / width))
+    edges = np.arange(n_all + 1) * width
+    index = np.round((l_deg - 0.5 * width) / width).astype(int) % n_all
+
+    def full(values):
+        out = np.zeros(n_all)
+        out[index] = values
+        return out
+
+    bottom = full(logged)
+    ax.stairs(bottom, edges, fill=True, color=_LOG_GREY, label="already logged", gid="logged")
     for k, (station, minutes) in enumerate(zip(summary["stations"], by_station)):
-        ax.bar(l_deg, minutes, width=width, bottom=bottom, color=station_colour(k), lw=0,
-               label=f"{station['name']} ({station['done_bins_contributed']} bins helped, "
-                     f"{station['moves']} moves)", gid=f"station-{k}")
-        bottom = bottom + minutes
+        top = bottom + full(minutes)
+        ax.stairs(top, edges, baseline=bottom, fill=True, color=station_colour(k),
+                  label=f"{station['name']} ({station['done_bins_contributed']} bins helped, "
+                        f"{station['moves']} moves)", gid=f"station-{k}")
+        bottom = top
     ax.axhline(target, color=OKABE_ITO["vermillion"], ls="--", lw=1.5,
                label=f"target depth ({target:g} min)")
     ax.set_ylabel("Integration depth (min)")
