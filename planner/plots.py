@@ -605,6 +605,20 @@ def month_chart(plan: dict) -> Figure:
 # ---------------------------------------------------------------- depth chart
 
 
+def bin_bars(ax, centres, heights, width: float, gid: str, label: str, **style) -> None:
+    """Bars of one kind as a single collection (hundreds of bins draw and save far faster
+    than as separate patches), with a legend entry. ``style``: Rectangle keywords."""
+    rects = [Rectangle((c - 0.5 * width, 0.0), width, h, **style)
+             for c, h in zip(np.asarray(centres, float), np.asarray(heights, float))]
+    ax.add_collection(PatchCollection(rects, match_original=True, gid=gid, zorder=2))
+    # the legend's entry: an empty rectangle on the first bar (adds nothing to the limits)
+    first = float(centres[0]) if len(centres) else 0.0
+    ax.add_patch(Rectangle((first, 0.0), 0.0, 0.0, label=label, **style))
+    ax.update_datalim([(float(np.min(centres, initial=0.0)), 0.0),
+                       (float(np.max(centres, initial=0.0)), float(np.max(heights, initial=0.0)))])
+    ax.autoscale_view()
+
+
 def depth_chart(plan: dict) -> Figure:
     """Integration depth (minutes) per wanted bin, before and after the plan.
 
@@ -626,10 +640,10 @@ def depth_chart(plan: dict) -> Figure:
     fig = Figure(figsize=(11.0, 5.0), layout="constrained")
     ax = fig.subplots()
     centres = starts + 0.5 * width
-    ax.bar(centres, after_min, width=width, color=OKABE_ITO["sky_blue"], edgecolor="white", lw=0.3,
-           label="after the plan", gid="depth-after")
-    ax.bar(centres, before_min, width=0.5 * width, color=OKABE_ITO["blue"],
-           label="before (observation log)", gid="depth-before")
+    bin_bars(ax, centres, after_min, width, "depth-after", "after the plan",
+             facecolor=OKABE_ITO["sky_blue"], edgecolor="white", lw=0.3)
+    bin_bars(ax, centres, before_min, 0.5 * width, "depth-before", "before (observation log)",
+             facecolor=OKABE_ITO["blue"], lw=0)
     if target is not None:
         ax.axhline(float(target), color=OKABE_ITO["vermillion"], ls="--", lw=1.5,
                    label=f"target depth ({float(target):g} min)")
@@ -900,10 +914,10 @@ def tally_chart(doc: dict) -> Figure:
                      f"recorded through {doc['plan']['through']}")
     starts = np.array([b["l_bin"] for b in bins], dtype=float)
     centres = starts + 0.5 * width
-    ax_bin.bar(centres, [b["planned_min"] for b in bins], width=width, color=OKABE_ITO["sky_blue"],
-               edgecolor="white", lw=0.3, label="planned", gid="bin-planned")
-    ax_bin.bar(centres, [b["recorded_min"] for b in bins], width=0.5 * width,
-               color=OKABE_ITO["blue"], label="recorded", gid="bin-recorded")
+    bin_bars(ax_bin, centres, [b["planned_min"] for b in bins], width, "bin-planned", "planned",
+             facecolor=OKABE_ITO["sky_blue"], edgecolor="white", lw=0.3)
+    bin_bars(ax_bin, centres, [b["recorded_min"] for b in bins], 0.5 * width, "bin-recorded",
+             "recorded", facecolor=OKABE_ITO["blue"], lw=0)
     if starts.size:
         lo, hi = float(starts.min()), float(starts.max() + width)
         pad = max(2.0, 0.03 * (hi - lo))

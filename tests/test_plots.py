@@ -382,9 +382,7 @@ def test_depth_chart(drift_plan, tmp_path):
     ax = fig.axes[0]
     summary = drift_plan["summary"]
     for gid, key in (("depth-after", "depth_after_min"), ("depth-before", "depth_before_min")):
-        bars = [p for p in ax.patches if p.get_gid() == gid] or \
-            [p for c in ax.containers if c.get_gid() == gid for p in c]
-        got = {round(p.get_x() + p.get_width() / 2 - 0.5): p.get_height() for p in bars}
+        got = {round((x0 + x1) / 2 - 0.5): y1 - y0 for x0, y0, x1, y1 in _patches(fig, gid)}
         assert got == {int(k): v for k, v in summary[key].items()}
     target = [line for line in ax.get_lines() if "target" in (line.get_label() or "")]
     assert target and np.allclose(target[0].get_ydata(), 60.0)
