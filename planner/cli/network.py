@@ -187,6 +187,7 @@ def run(args, console) -> int:
                                  ns.min_days_between_moves, p.guard, p.max_moves)
         alone_rows.append(rows_of_plan(m, plan.parkings))
         alone_reports.append(report)
+
     def greedy(s, done_min):
         p, ns = problems[s], station_args[s]
         goal = Goal(want=p.goal.want, target_minutes=p.goal.target_minutes, done_minutes=done_min)
