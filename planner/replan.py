@@ -58,6 +58,22 @@ def kept_moves(plan: dict, day: date) -> int:
     return sum(1 for d in kept_days(plan, day) if (d.get("park") or {}).get("move"))
 
 
+def last_move_day(plan: dict, day: date) -> date | None:
+    """The local day of the plan's last move before ``day`` (None: no move before it)."""
+    moved = [d["date"] for d in kept_days(plan, day) if (d.get("park") or {}).get("move")]
+    return date.fromisoformat(moved[-1]) if moved else None
+
+
+def move_slots_after_kept(slots, plan: dict, day: date, min_days: int) -> list:
+    """``slots`` (of the period from ``day``) without those too soon after the kept plan's
+    last move: moves stay ``min_days`` local days apart across the re-plan day too."""
+    last = last_move_day(plan, day)
+    if last is None or min_days <= 1:
+        return list(slots)
+    first_allowed = (last - day).days + min_days  # slot day indices count from ``day``
+    return [s for s in slots if s.day >= first_allowed]
+
+
 def merge(plan: dict, new: dict, day: date, src: str) -> dict:
     """One plan for the whole period: ``plan``'s days before ``day``, then ``new``'s."""
     kept = [{**d, "kept": True} for d in kept_days(plan, day)]

@@ -107,6 +107,22 @@ def test_tradeoff_counts_the_kept_moves(trip, capsys):
     assert row["bins"] == summary["done_after"] and row["moves"] == summary["moves"]
 
 
+def test_move_spacing_holds_across_the_replan_day(trip, capsys):
+    """--min-days-between-moves counts from the kept plan's last move too."""
+    last = replan.last_move_day(trip["plan"], date(2027, 3, 9))
+    assert last is not None
+    gap = (date(2027, 3, 9) - last).days + 3  # the first new move may come 3 days in, no sooner
+    out = trip["folder"] / "spaced.json"
+    code, _, err = _run(capsys, "month", "--keep", trip["plan_path"], "--start", REPLAN_DAY,
+                        "--want", WANT, "--log", trip["folder"] / "log.csv",
+                        "--min-days-between-moves", gap, "--format", "json", "-o", out)
+    assert code == 0, err
+    moves = [date.fromisoformat(d["date"]) for d in read_plan(out)["days"]
+             if not d.get("kept") and d["park"]["move"]]
+    assert all((day - last).days >= gap for day in moves)
+    assert replan.last_move_day(trip["plan"], date(2027, 3, 1)) is None
+
+
 def test_kept_setting_is_the_last_days_park(club, trip):
     plan = trip["plan"]
     setting = replan.kept_setting(plan, club, date(2027, 3, 9))

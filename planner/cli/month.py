@@ -209,6 +209,9 @@ def prepare(args, site, done_minutes=None) -> MonthProblem:
                         "(every one is too close to the Sun" + (", in daylight" if night_only else "")
                         + (" or outside the windows" if args.record_in_windows else "") + ")")
     slots = move_slots(start_mjd, days, site.tz, intervals)
+    if kept is not None:  # moves stay --min-days-between-moves apart across the re-plan day
+        from ..replan import move_slots_after_kept
+        slots = move_slots_after_kept(slots, kept, first_day, args.min_days_between_moves)
     if not slots:
         raise UserError("nothing to plan because no availability window falls on any day")
     start_row = _start_row(current, result)
