@@ -596,7 +596,16 @@ def month_chart(plan: dict) -> Figure:
     if plan.get("warnings"):
         title += "\nSUN HAZARD on the hatched red days: read the plan's warning before observing"
     fig.suptitle(title, color=OKABE_ITO["vermillion"] if plan.get("warnings") else "black")
-    order = ["night", "windows", "rec", "sun", "other", "park", "hazard", "dst", "outside"]
+    replan = plan.get("replan") if isinstance(plan.get("replan"), dict) else None
+    if replan and replan.get("from_day"):
+        # A re-planned plan: local midnight starting the re-plan day, traced as a step (it
+        # falls at 24 h in the row of the evening before): before it, the kept days.
+        i = (date.fromisoformat(replan["from_day"]) - first_row).days
+        ax.plot([x_lo, x_lo + 12.0, x_lo + 12.0, x_hi], [i - 0.5, i - 0.5, i - 1.5, i - 1.5],
+                color=OKABE_ITO["purple"], lw=2.0, zorder=5.5, gid="replan")
+        legend["replan"] = Line2D([], [], color=OKABE_ITO["purple"], lw=2.0,
+                                  label=f"re-planned from {replan['from_day']} (above: as planned before)")
+    order = ["night", "windows", "rec", "sun", "other", "park", "hazard", "dst", "outside", "replan"]
     fig.legend(handles=[legend[k] for k in order if k in legend], loc="outside lower center",
                ncols=4, fontsize=9)
     return fig

@@ -415,3 +415,14 @@ def test_survey_sky(survey_plan, tmp_path):
     # Three steps; 120->140 and 140->10 stay on the map; 10->350 crosses l = 0 and is drawn
     # as two clipped arrows (leaving at the right edge, entering at the left).
     assert len(arrows) == 4
+
+
+def test_month_chart_marks_the_replan_day(drift_plan):
+    """A re-planned plan: the step at local midnight starting the re-plan day (24 h in the row
+    of the evening before); rows run from Thu 25 Mar (row 0), so Sat 27 is row 2."""
+    fig = plots.month_chart({**drift_plan, "replan": {"from_day": "2027-03-28", "kept_days": 2}})
+    line = [ln for ln in fig.axes[0].get_lines() if ln.get_gid() == "replan"]
+    assert len(line) == 1
+    assert list(line[0].get_xdata()) == [12.0, 24.0, 24.0, 36.0]
+    assert list(line[0].get_ydata()) == [2.5, 2.5, 1.5, 1.5]  # under row 2's evening, over its morning
+    assert not [ln for ln in plots.month_chart(drift_plan).axes[0].get_lines() if ln.get_gid() == "replan"]
