@@ -159,13 +159,16 @@ def snr_after(peak_tb_k, tsys_k: float, channel_width_khz: float, minutes) -> np
     return np.asarray(peak_tb_k, dtype=float) / rms
 
 
-def spectrum_summary(spectrum: Spectrum, row: int) -> dict:
-    """peak_tb_k, peak_velocity_kms, v_min_kms / v_max_kms (T_B above 1 K) of one row."""
+def spectrum_summaries(spectrum: Spectrum) -> list[dict]:
+    """Per row: peak_tb_k, peak_velocity_kms, v_min_kms / v_max_kms (T_B above 1 K)."""
     lo, hi = spectrum.emission_range_kms()
-    return {"peak_tb_k": round(float(spectrum.peak_tb_k[row]), 2),
-            "peak_velocity_kms": round(float(spectrum.peak_velocity_kms[row]), 1),
-            "v_min_kms": None if np.isnan(lo[row]) else round(float(lo[row]), 1),
-            "v_max_kms": None if np.isnan(hi[row]) else round(float(hi[row]), 1)}
+    peak, at = spectrum.peak_tb_k, spectrum.peak_velocity_kms
+    return [{"peak_tb_k": round(float(peak[row]), 2),
+             "peak_velocity_kms": round(float(at[row]), 1),
+             "v_min_kms": None if np.isnan(lo[row]) else round(float(lo[row]), 1),
+             "v_max_kms": None if np.isnan(hi[row]) else round(float(hi[row]), 1)}
+            for row in range(peak.size)]
+
 
 
 # ------------------------------------------------------------------ plans
@@ -204,13 +207,14 @@ def group_spectra(groups: list[dict], beamwidth_deg: float, model: DiscModel) ->
         return []
     spec = expected_spectra([p[0] for p in flat], [p[1] for p in flat], beamwidth_deg,
                             PLAN_VELOCITY_KMS, model)
+    summaries = spectrum_summaries(spec)
     out, k = [], 0
     for g, ps in zip(groups, chosen):
         curves = []
         for l_deg, b_deg in ps:
             curves.append({"l_deg": l_deg, "b_deg": b_deg,
                            "tb_k": [round(float(x), 2) for x in spec.tb_k[k]],
-                           **spectrum_summary(spec, k)})
+                           **summaries[k]})
             k += 1
         out.append({**{key: v for key, v in g.items() if key != "positions"}, "curves": curves})
     return out
@@ -227,19 +231,20 @@ def bin_expectations(l_bins, bin_width_deg: float, beamwidth_deg: float, model: 
         return []
     spec = expected_spectra(starts + bin_width_deg / 2.0, np.zeros(starts.size), beamwidth_deg,
                             PLAN_VELOCITY_KMS, model)
-    need_min = minutes_for_snr(spec.peak_tb_k, tsys_k, channel_width_khz, snr)
+    peak = spec.peak_tb_k
+    need_min = minutes_for_snr(peak, tsys_k, channel_width_khz, snr)
     before = np.asarray(minutes_before, dtype=float)
     after = np.asarray(minutes_after, dtype=float)
+    snr_before = snr_after(peak, tsys_k, channel_width_khz, before)
+    snr_then = snr_after(peak, tsys_k, channel_width_khz, after)
     rate = (after - before) / days
     out = []
-    for i, start in enumerate(starts):
+    for i, (start, summary) in enumerate(zip(starts, spectrum_summaries(spec))):
         remaining = max(need_min[i] - after[i], 0.0)
         days_more = (0.0 if remaining == 0 else (remaining / rate[i] if rate[i] > 0 else None))
-        out.append({"l_deg": float(start), **spectrum_summary(spec, i),
-                    "snr_before": round(float(snr_after(spec.peak_tb_k[i], tsys_k, channel_width_khz,
-                                                        before[i])), 1),
-                    "snr_after": round(float(snr_after(spec.peak_tb_k[i], tsys_k, channel_width_khz,
-                                                       after[i])), 1),
+        out.append({"l_deg": float(start), **summary,
+                    "snr_before": round(float(snr_before[i]), 1),
+                    "snr_after": round(float(snr_then[i]), 1),
                     "minutes_for_snr": round(float(need_min[i]), 2),
                     "days_to_snr": None if days_more is None else round(float(days_more), 1)})
     return out

@@ -38,6 +38,7 @@ applies only to frequencies), distances kpc, angles degrees, temperatures K.
 from __future__ import annotations
 
 import math
+from collections import OrderedDict
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -204,6 +205,36 @@ def _sightline_tb_k(l_deg: np.ndarray, b_deg: np.ndarray, model: DiscModel) -> n
     return model.spin_temperature_k * -np.expm1(-tau)
 
 
+# Beam-averaged fine-grid spectra already computed, by (l, b, beam, model): plans of one
+# network, their briefs and calibration checks ask for the same bin centres again and again.
+# A few thousand rows of 801 channels (6 kB each); the oldest go first.
+_CACHE_ROWS = 4096
+_cache: OrderedDict = OrderedDict()
+
+
+def _beam_tb_fine(l_deg: np.ndarray, b_deg: np.ndarray, beam: float,
+                  model: DiscModel) -> np.ndarray:
+    """(P, F) T_B (K) on the fine grid averaged over the beam, each direction computed once."""
+    keys = [(float(l), float(b), beam, model) for l, b in zip(l_deg, b_deg)]
+    todo = sorted({k: i for i, k in enumerate(keys) if k not in _cache}.values())
+    if todo:
+        dx, dy, weight = _beam_offsets(beam)
+        l_all, b_all = _offset_directions(l_deg[todo], b_deg[todo], dx, dy)
+        b_all = np.clip(b_all, -90.0, 90.0)
+        tb = _sightline_tb_k(l_all.ravel(), b_all.ravel(), model)
+        tb = np.einsum("psf,s->pf", tb.reshape(len(todo), weight.size, -1), weight)
+        for i, row in zip(todo, tb):
+            row.setflags(write=False)
+            _cache[keys[i]] = row
+    rows = []
+    for k in keys:
+        _cache.move_to_end(k)
+        rows.append(_cache[k])
+    while len(_cache) > _CACHE_ROWS:
+        _cache.popitem(last=False)
+    return np.stack(rows)
+
+
 def expected_spectra(l_deg, b_deg, beamwidth_deg: float, velocity_kms=None,
                      model: DiscModel | None = None) -> Spectrum:
     """Expected T_B (K) toward each (l, b) (degrees, arrays of one length) through a Gaussian
@@ -221,11 +252,7 @@ def expected_spectra(l_deg, b_deg, beamwidth_deg: float, velocity_kms=None,
         raise UserError(f"beamwidth must be between 0 and 60 degrees, got {beamwidth_deg!r}")
     velocity = (np.arange(-250.0, 250.0 + 0.5, 1.0) if velocity_kms is None
                 else np.asarray(velocity_kms, dtype=float))
-    dx, dy, weight = _beam_offsets(beam)
-    l_all, b_all = _offset_directions(l_deg, b_deg, dx, dy)
-    b_all = np.clip(b_all, -90.0, 90.0)
-    tb_fine = _sightline_tb_k(l_all.ravel(), b_all.ravel(), model)
-    tb_fine = np.einsum("psf,s->pf", tb_fine.reshape(l_deg.size, weight.size, -1), weight)
+    tb_fine = _beam_tb_fine(l_deg, b_deg, beam, model)
     fine = _fine_velocities()
     tb = np.vstack([np.interp(velocity, fine, row, left=0.0, right=0.0) for row in tb_fine])
     return Spectrum(l_deg=l_deg, b_deg=b_deg, beamwidth_deg=beam, velocity_kms=velocity, tb_k=tb)

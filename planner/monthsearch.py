@@ -70,6 +70,38 @@ def _wanted_only(m: SlotModel) -> SlotModel:
                    want=np.ones(keep.size, bool), done=m.done[keep])
 
 
+class _RunEnds:
+    """A new run's minutes for every row and end at once, from one start (phase (a)).
+
+    A run of row r over [i, j) that starts with a move adds (``run_contrib``)
+    H[r, j] - H[r, i] + S[r, j - 1] - S[r, i] - EH[r, i] - [j - i >= 2] ES[r, i]
+    with H, S the prefix sums of passages inside and across intervals and EH, ES the
+    ones lost to the move: an end part H[r, j] + S[r, j - 1] kept as a (Q + 1, R, B)
+    array, so all ends of one start are a slice, less a start part.
+    """
+
+    def __init__(self, p: Prefix):
+        hold_t = np.moveaxis(p.hold, 1, 0)  # (Q + 1, R, B)
+        span_t = np.moveaxis(p.span, 1, 0)
+        self.end = hold_t.copy()
+        self.end[1:] += span_t[:-1]
+        self.start = hold_t + span_t  # (Q + 1, R, B), used at i <= Q - 1
+        self.early_hold = np.moveaxis(p.early_hold, 1, 0)  # (Q, R, B)
+        self.early_span = np.moveaxis(p.early_span, 1, 0)
+        self.unsafe = p.unsafe  # (R, Q + 1) prefix counts
+
+    def fresh_run(self, i: int) -> np.ndarray:
+        """(J, R, B), a new array: rows over [i, j), j = i + 1 .. Q, starting with a move."""
+        cut = self.start[i] + self.early_hold[i] + self.early_span[i]
+        out = self.end[i + 1:] - cut
+        out[0] += self.early_span[i]  # a one-interval run loses no passage across its end
+        return out
+
+    def safe_run(self, i: int) -> np.ndarray:
+        """(J, R) bool: no interval of [i, j) unsafe for the row (i >= 1)."""
+        return (self.unsafe[:, i + 1:] - self.unsafe[:, i:i + 1]).T == 0
+
+
 def _applied(rows: np.ndarray, assign) -> np.ndarray:
     """A copy of ``rows`` with each (i, j, row) of ``assign`` written to [i, j)."""
     trial = rows.copy()
@@ -123,6 +155,7 @@ def improve(m: SlotModel, rows: np.ndarray, max_rounds: int = MAX_ROUNDS) -> np.
     """
     m = _wanted_only(m)  # the objective reads wanted bins only: 2-3 times less to add up
     p = Prefix(m)
+    ends = _RunEnds(p)
     rows = rows.copy()
     best = score_of(m, exact_depth(m, p, rows), rows)
     n_q, n_rows = m.n_int, m.n_rows
@@ -131,47 +164,62 @@ def improve(m: SlotModel, rows: np.ndarray, max_rounds: int = MAX_ROUNDS) -> np.
         depth = fast_depth(m, p, rows)
         runs = runs_of(rows)
         run_at = np.repeat(np.arange(len(runs)), [j - i for _, i, j in runs])
-        contrib = [run_contrib(p, [r], [i], [j], [i >= 1])[0] for r, i, j in runs]
+        run_row, run_start, run_end = (np.array(x) for x in zip(*runs))
+        contrib = run_contrib(p, run_row, run_start, run_end, run_start >= 1)  # (runs, B)
         moves_now = score_of(m, depth, rows).moves
-        # The run after j, cut to start at j with a move there (for every j at once).
-        right_part = {}
-        for j in range(1, n_q):
-            c, _, rc_end = runs[run_at[j]]
-            right_part[j] = run_contrib(p, c, j, rc_end, True)
+        # The run holding j, cut to start at j with a move there, for every j at once;
+        # and the run holding i - 1, cut to end at i.
+        at = np.arange(n_q)
+        right_part = run_contrib(p, run_row[run_at], at, run_end[run_at], True)  # (Q, B)
+        left_start = run_start[run_at]
+        left_part_at = run_contrib(p, run_row[run_at][:-1], left_start[:-1], at[1:],
+                                   left_start[:-1] >= 1)  # (Q - 1, B): index i - 1
         candidates = []  # (key, assignments ((i, j, row), ...)) of improving candidates
         # (a) every run of intervals [i, j) to every row: for each i, all j and rows at
         # once, (j, row, bin) arrays. The runs around [i, j) are recomposed: the run
         # before i keeps [its start, i) (or absorbs the new run if it has its row), the
-        # run holding j restarts at j with a move (or absorbs it likewise).
+        # run holding j restarts at j with a move (or absorbs it likewise). A new run of
+        # any other row r adds ends[j, r] - starts_at(i)[r] (``_RunEnds``), slices and no
+        # gathers; the two rows that merge with a neighbour are re-counted apart.
         cum_contrib = np.concatenate([np.zeros((1, depth.size)), np.cumsum(contrib, axis=0)])
         j_all = np.arange(2, n_q + 1)
         has_right = j_all < n_q
         right_run = np.where(has_right, run_at[np.minimum(j_all, n_q - 1)], len(runs) - 1)
         c_of = np.where(has_right, [runs[k][0] for k in right_run], -2)
         rc_end_of = np.where(has_right, [runs[k][2] for k in right_run], n_q)
-        right_parts = np.stack([right_part[j] if j < n_q else np.zeros_like(depth)
-                                for j in j_all])  # (J, B)
+        right_parts = np.concatenate([right_part[2:], np.zeros((1, depth.size))])  # (J, B)
         for i in range(1, n_q):
             left = run_at[i - 1]
             a, la, _ = runs[left]
-            left_part = run_contrib(p, a, la, i, la >= 1)
+            left_part = left_part_at[i - 1]
             js = slice(i - 1, None)  # j = i + 1 .. n_q
             j, last, c, rc_end = j_all[js], right_run[js], c_of[js], rc_end_of[js]
             old = cum_contrib[last + 1] - cum_contrib[left]  # (J, B)
             inner_moves = last - left  # every run after the left one starts with a move
+            kept = depth - old  # (J, B): the plan without the runs left..last
+            around = kept + left_part + right_parts[js]  # right parts are 0 past the end
+            cand = ends.fresh_run(i)  # (J, R, B) new run [i, j) of each row, with a move
+            cand += around[:, None, :]
+            if a >= 0:  # the new run has the left run's row: it extends that run
+                mid_end = np.where(c == a, rc_end, j)
+                cand[:, a] = (kept + run_contrib(p, a, la, mid_end, la >= 1)
+                              + np.where(((c != a) & has_right[js])[:, None], right_parts[js], 0.0))
+            merge = (c >= 0) & (c != a)  # the new run has the right run's row: it absorbs it
+            if merge.any():
+                jm = np.flatnonzero(merge)
+                cand[jm, c[jm]] = (kept[jm] + left_part
+                                   + run_contrib(p, c[jm], i, rc_end[jm], True))
+            bins, progress = _scores(m, cand)
             same_a = all_rows == a  # (R,)
             same_c = all_rows[None, :] == c[:, None]  # (J, R)
-            mid_start = np.where(same_a, la, i)[None, :]
-            mid_end = np.where(same_c, rc_end[:, None], j[:, None])
-            mid_fresh = np.where(same_a, la >= 1, True)[None, :]
-            new = run_contrib(p, all_rows[None, :], mid_start, mid_end, mid_fresh)  # (J, R, B)
-            new += np.where(same_a[None, :, None], 0.0, left_part)
-            new += np.where(same_c[:, :, None] | ~has_right[js, None, None], 0.0,
-                            right_parts[js][:, None, :])
-            bins, progress = _scores(m, (depth - old)[:, None, :] + new)
             moves = (moves_now - inner_moves[:, None] + (~same_a)[None, :]
                      + ((~same_c) & has_right[js, None]))
-            for jj, r in zip(*np.nonzero(_better(bins, progress, moves, best))):
+            # Rules checked here for all at once (the rest by ``feasible`` on acceptance):
+            # no unsafe interval in the new run, the move cap.
+            ok = ends.safe_run(i)  # (J, R)
+            if m.max_moves is not None:
+                ok &= moves <= m.max_moves
+            for jj, r in zip(*np.nonzero(ok & _better(bins, progress, moves, best))):
                 candidates.append(((int(bins[jj, r]), round(float(progress[jj, r]), 6),
                                     -int(moves[jj, r])), ((i, int(j[jj]), int(r)),)))
         # (b) two parkings at once; merges with neighbours are ignored in this fast score.

@@ -37,9 +37,15 @@ MAX_CYCLES = 8  # coordination passes over the stations at most (a count: same p
 NETWORK_ROUNDS = 10
 
 
-def contribution(m: SlotModel, rows: np.ndarray) -> np.ndarray:
-    """Minutes per bin a station's plan adds (its exact accounting, the logs left out)."""
-    return exact_depth(m, Prefix(m), rows) - m.done
+def contribution(m: SlotModel, rows: np.ndarray, p: Prefix | None = None) -> np.ndarray:
+    """Minutes per bin a station's plan adds (its exact accounting, the logs left out).
+    ``p``: the model's prefix sums when the caller keeps them (they ignore ``done``)."""
+    return exact_depth(m, p or Prefix(m), rows) - m.done
+
+
+def prefixes(models: list[SlotModel]) -> list[Prefix]:
+    """Each station's prefix sums, built once for the many re-counts of a joint search."""
+    return [Prefix(m) for m in models]
 
 
 @dataclass(frozen=True)
@@ -53,14 +59,17 @@ class NetworkScore:
         return (self.bins, round(self.progress, 6), -self.moves)
 
 
-def network_depth(models: list[SlotModel], rows: list[np.ndarray]) -> np.ndarray:
+def network_depth(models: list[SlotModel], rows: list[np.ndarray],
+                  ps: list[Prefix] | None = None) -> np.ndarray:
     """Depth per bin of the network: the logs plus every station's minutes."""
-    return models[0].done + sum(contribution(m, r) for m, r in zip(models, rows))
+    ps = ps or prefixes(models)
+    return models[0].done + sum(contribution(m, r, p) for m, r, p in zip(models, rows, ps))
 
 
-def network_score(models: list[SlotModel], rows: list[np.ndarray]) -> NetworkScore:
+def network_score(models: list[SlotModel], rows: list[np.ndarray],
+                  ps: list[Prefix] | None = None) -> NetworkScore:
     m0 = models[0]
-    depth = network_depth(models, rows)
+    depth = network_depth(models, rows, ps)
     moves = sum(score_of(m, m.done, r).moves for m, r in zip(models, rows))
     want = depth[m0.want]
     return NetworkScore(int(np.count_nonzero(want >= m0.target - 1e-9)),
@@ -71,17 +80,18 @@ def _with_others(m: SlotModel, others_min: np.ndarray) -> SlotModel:
     return replace(m, done=m.done + others_min)
 
 
-def _cycle(models: list[SlotModel], rows: list[np.ndarray], max_rounds: int) -> list[np.ndarray]:
+def _cycle(models: list[SlotModel], rows: list[np.ndarray], max_rounds: int,
+           ps: list[Prefix]) -> list[np.ndarray]:
     """Improve each station in turn against the others' minutes until none changes."""
     rows = [r.copy() for r in rows]
-    contrib = [contribution(m, r) for m, r in zip(models, rows)]
+    contrib = [contribution(m, r, p) for m, r, p in zip(models, rows, ps)]
     for _ in range(MAX_CYCLES):
         changed = False
         for s, m in enumerate(models):  # stations
             others = sum((c for t, c in enumerate(contrib) if t != s), np.zeros_like(m.done))
             new = improve(_with_others(m, others), rows[s], max_rounds)
             if not np.array_equal(new, rows[s]):
-                rows[s], contrib[s], changed = new, contribution(m, new), True
+                rows[s], contrib[s], changed = new, contribution(m, new, ps[s]), True
         if not changed:
             break
     return rows
@@ -93,22 +103,23 @@ def coordinate(models: list[SlotModel], alone_rows: list[np.ndarray],
                max_rounds: int = NETWORK_ROUNDS) -> list[np.ndarray]:
     """The joint plan (module docstring): never worse than ``alone_rows`` by the network's
     objective. ``sequential_rows``: a second start (stations planned one after another)."""
+    ps = prefixes(models)
     starts = [sequential_rows] if sequential_rows is not None else [alone_rows]
-    best, best_score = alone_rows, network_score(models, alone_rows)
+    best, best_score = alone_rows, network_score(models, alone_rows, ps)
     for start in starts:
-        rows = _cycle(models, start, max_rounds)
-        score = network_score(models, rows)
+        rows = _cycle(models, start, max_rounds, ps)
+        score = network_score(models, rows, ps)
         if score.key > best_score.key:
             best, best_score = rows, score
     if exact_seconds:
         best = [r.copy() for r in best]
         share = exact_seconds / len(models)
         for s, m in enumerate(models):  # one exact pass, the others fixed
-            others = sum((contribution(models[t], best[t]) for t in range(len(models)) if t != s),
-                         np.zeros_like(m.done))
+            others = sum((contribution(models[t], best[t], ps[t]) for t in range(len(models))
+                          if t != s), np.zeros_like(m.done))
             rows, _ = optimize(_with_others(m, others), best[s], share, max_rounds)
             trial = best[:s] + [rows] + best[s + 1:]
-            if network_score(models, trial).key > network_score(models, best).key:
+            if network_score(models, trial, ps).key > network_score(models, best, ps).key:
                 best = trial
     return best
 

@@ -370,7 +370,7 @@ def spectrum_document(site: Site, spectrum, rotation_name: str, lsr_definition: 
     """
     from dataclasses import asdict
     from .calibration import dilution_caveat
-    from .expected import CAUTION, lsr_velocity_of_sky_kms, minutes_for_snr, spectrum_summary
+    from .expected import CAUTION, lsr_velocity_of_sky_kms, minutes_for_snr, spectrum_summaries
     from .galactic import galactic_to_icrs_deg
     from .hidisc import EMISSION_LEVEL_K, DiscModel
     tz = site.tz
@@ -387,11 +387,12 @@ def spectrum_document(site: Site, spectrum, rotation_name: str, lsr_definition: 
         "velocity_kms": [round(float(v), 3) for v in spectrum.velocity_kms],
     }
     rows = []
+    summaries = spectrum_summaries(spectrum)
     for i in range(spectrum.l_deg.size):
         row = {"l_deg": round(float(spectrum.l_deg[i]), 4), "b_deg": round(float(spectrum.b_deg[i]), 4),
                "ra_deg": round(float(np.atleast_1d(ra)[i]), 4),
                "dec_deg": round(float(np.atleast_1d(dec)[i]), 4),
-               **spectrum_summary(spectrum, i),
+               **summaries[i],
                "minutes_for_snr": None if not np.isfinite(minutes[i]) else round(float(minutes[i]), 4)}
         if labels is not None:
             row = {"label": labels[i], **row}

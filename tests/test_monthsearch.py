@@ -16,9 +16,9 @@ from planner.coverage import sweep
 from planner.month import Goal, _depth_of, _usable_sorted, move_slots, plan_month
 from planner.monthmip import linear_bound, solve_exact
 from planner.monthmodel import (Prefix, build_model, exact_depth, feasible, parkings_of_rows,
-                                rows_of_plan, score_of)
+                                rows_of_plan, run_contrib, score_of)
 from planner.monthsafety import sun_guard
-from planner.monthsearch import best_plan, improve
+from planner.monthsearch import _RunEnds, best_plan, improve
 from planner.obslog import coverage_minutes, read_log
 from planner.park import candidate_pointings, parse_want
 from planner.planfile import read_plan
@@ -58,6 +58,23 @@ def test_interval_model_matches_month_accounting(march):
             j = int(rng.integers(i + 1, trial.size + 1))
             trial[i:j] = int(rng.integers(0, model.n_rows))
         assert np.abs(exact_depth(model, p, trial) - _month_recount(result, goal, model, trial)).max() < 1e-9
+
+
+def test_run_ends_match_run_contrib(march):
+    """The search's sliced new-run minutes are ``run_contrib``'s for every row, start and end,
+    and its Sun test is ``feasible``'s interval rule (1e-9 min: sums in another order)."""
+    result, goal, slots, guard = march
+    model = build_model(result, goal, slots, 5, 15.0, 1, None, guard)
+    p = Prefix(model)
+    ends = _RunEnds(p)
+    rows = np.arange(model.n_rows)
+    assert model.unsafe.any()  # the check below has something to find
+    for i in range(1, model.n_int):
+        j = np.arange(i + 1, model.n_int + 1)
+        want = run_contrib(p, rows[None, :], i, j[:, None], True)
+        assert np.abs(ends.fresh_run(i) - want).max() < 1e-9
+        unsafe = np.array([[model.unsafe[r, i:jj].any() for r in rows] for jj in j])
+        assert np.array_equal(ends.safe_run(i), ~unsafe)
 
 
 def _small_problem(club):

@@ -126,7 +126,7 @@ def run(args, console) -> int:
     from ..monthmodel import build_model, parkings_of_rows, rows_of_plan, score_of
     from ..monthsearch import OptimizeReport, best_plan
     from ..network import (bins_at_target, contribution, coordinate, network_depth,
-                           network_score, one_after_another, upper_bound)
+                           network_score, one_after_another, prefixes, upper_bound)
     from ..obslog import coverage_minutes, read_logs
     from ..outputs import write_all
     from ..report import to_json
@@ -197,15 +197,17 @@ def run(args, console) -> int:
 
     seq_rows = one_after_another(models, greedy)
     joint = coordinate(models, alone_rows, seq_rows, args.optimize)
-    alone, after = network_score(models, alone_rows), network_score(models, joint)
+    ps = prefixes(models)
+    alone, after = network_score(models, alone_rows, ps), network_score(models, joint, ps)
     bound = upper_bound(models, after.bins)
-    depth_alone, depth_after = network_depth(models, alone_rows), network_depth(models, joint)
+    depth_alone = network_depth(models, alone_rows, ps)
+    depth_after = network_depth(models, joint, ps)
     target = models[0].target
     done_bins = set(int(b) for b in bins_at_target(models[0], depth_after))
 
     summary_stations, per_station_min = [], []
-    for st, site, m, rows, slug in zip(stations, sites, models, joint, slugs):
-        minutes = contribution(m, rows)
+    for st, site, m, rows, slug, p in zip(stations, sites, models, joint, slugs, ps):
+        minutes = contribution(m, rows, p)
         per_station_min.append(minutes)
         helped = sorted(b for b in done_bins if minutes[b] > 0)
         summary_stations.append({
