@@ -44,11 +44,15 @@ def _better(bins, progress, moves, best) -> np.ndarray:
                                                         | ((prog == ref) & (moves < best.moves))))
 
 
-def _scores(m: SlotModel, depth: np.ndarray):
-    """(bins at target, capped progress) of candidate depths (..., B)."""
-    want = depth if m.want.all() else depth[..., m.want]
-    return (np.count_nonzero(want >= m.target - 1e-9, axis=-1),
-            (np.minimum(want, m.target) / m.target).sum(axis=-1))
+def _scores(m: SlotModel, depth: np.ndarray, scratch: bool = False):
+    """(bins at target, capped progress) of candidate depths (..., B); ``scratch``: ``depth``
+    may be overwritten (it is a wanted-only model's, and the caller's own)."""
+    if not scratch or not m.want.all():
+        depth = depth[..., m.want]  # a copy
+    bins = np.count_nonzero(depth >= m.target - 1e-9, axis=-1)
+    np.minimum(depth, m.target, out=depth)
+    depth /= m.target
+    return bins, depth.sum(axis=-1)
 
 
 # Reassigning two parkings at once is tried for every pair when a plan has at most this
@@ -60,10 +64,14 @@ _PERMUTE_UP_TO = 6
 
 
 def _wanted_only(m: SlotModel) -> SlotModel:
-    """The model restricted to the wanted bins still short of the target: the only ones whose
-    count or capped progress a plan can change (a bin already at target stays there, adding a
-    constant to both), so every comparison the search makes is the same."""
-    keep = np.flatnonzero(m.want & (m.done < m.target - 1e-9))
+    """The model restricted to the wanted bins still short of the target that some setting
+    reaches: the only ones whose count or capped progress a plan can change (a bin already at
+    target, or one no passage crosses, keeps its depth, adding a constant to both), so every
+    comparison the search makes is the same."""
+    reach = (m.hold + m.span).sum(axis=(0, 1)) > 0
+    for *_, minutes in m.multi:  # rare
+        reach |= minutes > 0
+    keep = np.flatnonzero(m.want & (m.done < m.target - 1e-9) & reach)
     return replace(m, hold=m.hold[:, :, keep], fresh=m.fresh[:, :, keep],
                    span=m.span[:, :, keep], span_late=m.span_late[:, :, keep],
                    multi=tuple((r, a, c, late, minutes[keep]) for r, a, c, late, minutes in m.multi),
@@ -89,11 +97,13 @@ class _RunEnds:
         self.early_hold = np.moveaxis(p.early_hold, 1, 0)  # (Q, R, B)
         self.early_span = np.moveaxis(p.early_span, 1, 0)
         self.unsafe = p.unsafe  # (R, Q + 1) prefix counts
+        self._buffer = np.empty_like(self.end[1:])  # reused: no fresh pages each start
 
     def fresh_run(self, i: int) -> np.ndarray:
-        """(J, R, B), a new array: rows over [i, j), j = i + 1 .. Q, starting with a move."""
+        """(J, R, B): rows over [i, j), j = i + 1 .. Q, starting with a move; valid until the
+        next call (one buffer serves every start)."""
         cut = self.start[i] + self.early_hold[i] + self.early_span[i]
-        out = self.end[i + 1:] - cut
+        out = np.subtract(self.end[i + 1:], cut, out=self._buffer[i:])
         out[0] += self.early_span[i]  # a one-interval run loses no passage across its end
         return out
 
@@ -118,31 +128,31 @@ def _polish_moves(m: SlotModel, p: Prefix, rows: np.ndarray) -> np.ndarray:
     runs it separates change, each a prefix-sum difference (``run_contrib``).
     """
     rows = rows.copy()
-    best = score_of(m, fast_depth(m, p, rows), rows).key
+    runs = runs_of(rows)  # shifting a move keeps both runs non-empty: the runs stay the runs
+    depth = fast_depth(m, p, rows)
+    best = score_of(m, depth, rows).key
     changed = True
     while changed:  # a few sweeps
         changed = False
-        k = 1
-        while k < len(runs_of(rows)):
-            runs = runs_of(rows)
-            (left, l0, _), (right, _, r1) = runs[k - 1], runs[k]
+        for k in range(1, len(runs)):
+            (left, l0, l1), (right, r0, r1) = runs[k - 1], runs[k]
             if left < 0:  # the first setting after an unknown start: at the first slot
-                k += 1
                 continue
-            depth = fast_depth(m, p, rows)
-            base = (depth - run_contrib(p, [left], [l0], [runs[k - 1][2]], [l0 >= 1])[0]
-                    - run_contrib(p, [right], [runs[k][1]], [r1], [True])[0])
+            base = (depth - run_contrib(p, [left], [l0], [l1], [l0 >= 1])[0]
+                    - run_contrib(p, [right], [r0], [r1], [True])[0])
             q = np.arange(l0 + 1, r1)  # the move's slot: left keeps [l0, q), right [q, r1)
             cand = (base[None, :] + run_contrib(p, np.full(q.size, left), np.full(q.size, l0), q,
                                                 np.full(q.size, l0 >= 1))
                     + run_contrib(p, np.full(q.size, right), q, np.full(q.size, r1), True))
-            bins, progress = _scores(m, cand)
+            bins, progress = _scores(m, cand, scratch=True)
             keys = [(int(b), round(float(g), 6), best[2]) for b, g in zip(bins, progress)]
-            pick = max(range(q.size), key=lambda i: (keys[i], -abs(q[i] - runs[k][1])))
+            pick = max(range(q.size), key=lambda i: (keys[i], -abs(q[i] - r0)))
             if keys[pick] > best:
-                rows[l0:q[pick]], rows[q[pick]:r1] = left, right
+                at = int(q[pick])
+                rows[l0:at], rows[at:r1] = left, right
+                runs[k - 1], runs[k] = (left, l0, at), (right, at, r1)
+                depth = fast_depth(m, p, rows)
                 best, changed = keys[pick], True
-            k += 1
     return rows
 
 
@@ -209,7 +219,7 @@ def improve(m: SlotModel, rows: np.ndarray, max_rounds: int = MAX_ROUNDS) -> np.
                 jm = np.flatnonzero(merge)
                 cand[jm, c[jm]] = (kept[jm] + left_part
                                    + run_contrib(p, c[jm], i, rc_end[jm], True))
-            bins, progress = _scores(m, cand)
+            bins, progress = _scores(m, cand, scratch=True)
             same_a = all_rows == a  # (R,)
             same_c = all_rows[None, :] == c[:, None]  # (J, R)
             moves = (moves_now - inner_moves[:, None] + (~same_a)[None, :]
@@ -231,7 +241,7 @@ def improve(m: SlotModel, rows: np.ndarray, max_rounds: int = MAX_ROUNDS) -> np.
                     continue
                 base = depth - contrib[k] - contrib[k2]
                 bins, progress = _scores(m, base[None, None, :] + own[k][:, None, :]
-                                         + own[k2][None, :, :])
+                                         + own[k2][None, :, :], scratch=True)
                 good = _better(bins, progress, np.full(bins.shape, moves_now), best)
                 good[runs[k][0], runs[k2][0]] = False
                 for r1, r2 in zip(*np.nonzero(good)):
@@ -335,13 +345,16 @@ def optimize(m: SlotModel, greedy_rows: np.ndarray, exact_seconds: float | None 
 
 def best_plan(sweep, goal, slots, start_row: int | None, repark_minutes: float = 15.0,
               min_days_between_moves: int = 1, guard=None, max_moves: int | None = None,
-              exact_seconds: float | None = None, max_rounds: int = MAX_ROUNDS):
-    """(``month.MonthPlan``, ``OptimizeReport``): the greedy, improved (``optimize``)."""
+              exact_seconds: float | None = None, max_rounds: int = MAX_ROUNDS,
+              model: SlotModel | None = None):
+    """(``month.MonthPlan``, ``OptimizeReport``): the greedy, improved (``optimize``).
+    ``model``: the problem's ``build_model``, when the caller has it already."""
     from .month import plan_from_parkings, plan_month
     greedy = plan_month(sweep, goal, slots, start_row, repark_minutes, min_days_between_moves,
                         guard, max_moves)
-    model = build_model(sweep, goal, slots, start_row, repark_minutes, min_days_between_moves,
-                        max_moves, guard)
+    if model is None:
+        model = build_model(sweep, goal, slots, start_row, repark_minutes,
+                            min_days_between_moves, max_moves, guard)
     rows, report = optimize(model, rows_of_plan(model, greedy.parkings), exact_seconds, max_rounds)
     return plan_from_parkings(sweep, goal, parkings_of_rows(model, rows), guard,
                               repark_minutes), report

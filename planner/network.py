@@ -85,13 +85,21 @@ def _cycle(models: list[SlotModel], rows: list[np.ndarray], max_rounds: int,
     """Improve each station in turn against the others' minutes until none changes."""
     rows = [r.copy() for r in rows]
     contrib = [contribution(m, r, p) for m, r, p in zip(models, rows, ps)]
+    # Stations whose last search changed nothing, no station having changed since: a search
+    # is deterministic, so theirs would change nothing again and is skipped.
+    settled: set[int] = set()
     for _ in range(MAX_CYCLES):
         changed = False
         for s, m in enumerate(models):  # stations
+            if s in settled:
+                continue
             others = sum((c for t, c in enumerate(contrib) if t != s), np.zeros_like(m.done))
             new = improve(_with_others(m, others), rows[s], max_rounds)
-            if not np.array_equal(new, rows[s]):
+            if np.array_equal(new, rows[s]):
+                settled.add(s)
+            else:
                 rows[s], contrib[s], changed = new, contribution(m, new, ps[s]), True
+                settled.clear()
         if not changed:
             break
     return rows
@@ -100,10 +108,12 @@ def _cycle(models: list[SlotModel], rows: list[np.ndarray], max_rounds: int,
 def coordinate(models: list[SlotModel], alone_rows: list[np.ndarray],
                sequential_rows: list[np.ndarray] | None = None,
                exact_seconds: float | None = None,
-               max_rounds: int = NETWORK_ROUNDS) -> list[np.ndarray]:
+               max_rounds: int = NETWORK_ROUNDS,
+               ps: list[Prefix] | None = None) -> list[np.ndarray]:
     """The joint plan (module docstring): never worse than ``alone_rows`` by the network's
-    objective. ``sequential_rows``: a second start (stations planned one after another)."""
-    ps = prefixes(models)
+    objective. ``sequential_rows``: a second start (stations planned one after another);
+    ``ps``: the stations' ``prefixes`` when the caller has them."""
+    ps = ps or prefixes(models)
     starts = [sequential_rows] if sequential_rows is not None else [alone_rows]
     best, best_score = alone_rows, network_score(models, alone_rows, ps)
     for start in starts:

@@ -184,7 +184,7 @@ def run(args, console) -> int:
     alone_rows, alone_reports = [], []
     for p, m, ns in zip(problems, models, station_args):
         plan, report = best_plan(p.sweep, p.goal, p.slots, p.start_row, ns.repark_minutes,
-                                 ns.min_days_between_moves, p.guard, p.max_moves)
+                                 ns.min_days_between_moves, p.guard, p.max_moves, model=m)
         alone_rows.append(rows_of_plan(m, plan.parkings))
         alone_reports.append(report)
 
@@ -196,8 +196,8 @@ def run(args, console) -> int:
         return rows_of_plan(models[s], plan.parkings)
 
     seq_rows = one_after_another(models, greedy)
-    joint = coordinate(models, alone_rows, seq_rows, args.optimize)
     ps = prefixes(models)
+    joint = coordinate(models, alone_rows, seq_rows, args.optimize, ps=ps)
     alone, after = network_score(models, alone_rows, ps), network_score(models, joint, ps)
     bound = upper_bound(models, after.bins)
     depth_alone = network_depth(models, alone_rows, ps)
