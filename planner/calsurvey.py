@@ -186,8 +186,10 @@ MAX_DROPPED_TARGETS = 2
 
 
 def _sessions(blocks) -> list[tuple[int, int]]:
-    """(first, last) block indices of each observing session: the rule of
-    ``planfile.survey_sessions`` (a gap over SESSION_GAP_MIN, or a stow, ends a session)."""
+    """(first, last) block indices of each observing session: a gap over SESSION_GAP_MIN
+    ends one, as in ``planfile.survey_sessions``, and so does every stow (that rule measures
+    the gap from the stow's start; here a session never goes on past the dish being stowed,
+    so no calibration is placed against a stow)."""
     out = []
     for i, b in enumerate(blocks):
         gap_min = (b.start_mjd - blocks[i - 1].end_mjd) * 1440.0 if i else None

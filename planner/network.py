@@ -1,6 +1,6 @@
 """Several stations, one plane: month plans chosen together so the network fills the most bins.
 
-Each station has its own month problem (``monthmodel.SlotModel``: its sites's passages, move
+Each station has its own month problem (``monthmodel.SlotModel``: its site's passages, move
 slots, Sun rules and move cap); all share one goal: wanted longitude bins and a target depth,
 the depth of a bin being the logs' minutes plus every station's. A plan is one row per
 interval per station (``monthmodel``).
@@ -11,8 +11,9 @@ interval per station (``monthmodel``).
   (``monthsearch.improve``) against a goal whose logged minutes include the other stations'
   current contributions, so every accepted change improves the network's objective (bins at
   target, then capped progress) with the others fixed; cycles repeat until no station
-  changes. Two starts: the baseline, and stations planned one after another each counting
-  those before it; the better result is kept, and it is never worse than the baseline.
+  changes. It starts from the stations planned one after another (``one_after_another``),
+  each counting those before it; the result is kept only if it beats the baseline, so it is
+  never worse.
   ``exact_seconds`` adds the integer program (``monthsearch.optimize``) for each station in a
   last pass, the others fixed.
 * ``upper_bound``: no joint plan brings more wanted bins to target. In each interval a station
@@ -24,11 +25,11 @@ Minutes per bin, (B,) arrays over all 1-degree (bin-width) bins.
 """
 from __future__ import annotations
 
-from dataclasses import dataclass, replace
+from dataclasses import replace
 
 import numpy as np
 
-from .monthmodel import Prefix, SlotModel, exact_depth, score_of
+from .monthmodel import Prefix, Score, SlotModel, exact_depth, moves_of, score_of
 from .monthsearch import improve, optimize
 
 MAX_CYCLES = 8  # coordination passes over the stations at most (a count: same plan everywhere)
@@ -48,17 +49,6 @@ def prefixes(models: list[SlotModel]) -> list[Prefix]:
     return [Prefix(m) for m in models]
 
 
-@dataclass(frozen=True)
-class NetworkScore:
-    bins: int  # wanted bins at the target depth
-    progress: float  # sum over wanted bins of min(depth, target) / target
-    moves: int  # all stations together
-
-    @property
-    def key(self) -> tuple:
-        return (self.bins, round(self.progress, 6), -self.moves)
-
-
 def network_depth(models: list[SlotModel], rows: list[np.ndarray],
                   ps: list[Prefix] | None = None) -> np.ndarray:
     """Depth per bin of the network: the logs plus every station's minutes."""
@@ -67,13 +57,11 @@ def network_depth(models: list[SlotModel], rows: list[np.ndarray],
 
 
 def network_score(models: list[SlotModel], rows: list[np.ndarray],
-                  ps: list[Prefix] | None = None) -> NetworkScore:
-    m0 = models[0]
-    depth = network_depth(models, rows, ps)
-    moves = sum(score_of(m, m.done, r).moves for m, r in zip(models, rows))
-    want = depth[m0.want]
-    return NetworkScore(int(np.count_nonzero(want >= m0.target - 1e-9)),
-                        float((np.minimum(want, m0.target) / m0.target).sum()), int(moves))
+                  ps: list[Prefix] | None = None) -> Score:
+    """The network's objective, a month plan's ``Score`` on the network's depth: wanted bins
+    at target, capped progress, and the moves of all stations together."""
+    one = score_of(models[0], network_depth(models, rows, ps), rows[0])
+    return Score(one.bins, one.progress, sum(int(moves_of(r).size) for r in rows))
 
 
 def _with_others(m: SlotModel, others_min: np.ndarray) -> SlotModel:

@@ -188,12 +188,14 @@ def plan_survey(site: Site, targets, settings: SurveySettings,
                                              settings.calibrate_minutes)
     blocks = annotate_blocks(site, targets, blocks, settings)
     scheduled = _scheduled(blocks, len(targets))
+    index: dict[str, int] = {}  # a target's index by name (the first, should names repeat)
+    for i, t in enumerate(targets):
+        index.setdefault(t.name, i)
     unscheduled = tuple(
         replace(u, reason=f"{REASON_CALIBRATION} ({u.repeats_scheduled} of {u.repeats_wanted} "
                           "repeats scheduled)")
-        if dispatched[i] > scheduled[i] else u
-        for u, i in ((u, [t.name for t in targets].index(u.name))
-                     for u in _reasons(dispatcher, vis, targets, wanted, done, scheduled)))
+        if dispatched[index[u.name]] > scheduled[index[u.name]] else u
+        for u in _reasons(dispatcher, vis, targets, wanted, done, scheduled))
     return SurveyPlan(site=site, settings=settings, targets=targets, blocks=tuple(blocks),
                       unscheduled=unscheduled, done_before=tuple(int(x) for x in done),
                       calibration_missing=tuple(missing))

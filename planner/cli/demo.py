@@ -7,6 +7,7 @@ its steerable dish. Every file is written by the same commands a user runs.
 """
 from __future__ import annotations
 
+import json
 import time
 from pathlib import Path
 
@@ -179,7 +180,6 @@ def run(args, console) -> int:
     console.print(f"Plan: {summary['done_before']} → {summary['done_after']} of {summary['wanted_bins']} "
                   f"wanted 1° bins at {summary['target_minutes']:g} min depth, {summary['moves']} re-parks.")
     _tally_note(console, out)
-    import json
     net = json.loads((out / "network" / "network.json").read_text(encoding="utf-8"))
     console.print(f"Network (three invented stations, 14 days, l {DEMO_NETWORK_WANT}): "
                   f"{net['done_after']} wanted bins at target planned together against "
@@ -192,7 +192,6 @@ def run(args, console) -> int:
 
 def _tally_note(console, out: Path) -> None:
     """The recordings stage in figures: the plan against the tally, and the re-plan."""
-    import json
 
     from ..planfile import read_plan
     doc = json.loads((out / "tally-hollowmere.json").read_text(encoding="utf-8"))

@@ -206,7 +206,7 @@ def run(args, console) -> int:
     done_bins = set(int(b) for b in bins_at_target(models[0], depth_after))
 
     summary_stations, per_station_min = [], []
-    for st, site, m, rows, slug, p in zip(stations, sites, models, joint, slugs, ps):
+    for k, (site, m, rows, slug, p) in enumerate(zip(sites, models, joint, slugs, ps)):
         minutes = contribution(m, rows, p)
         per_station_min.append(minutes)
         helped = sorted(b for b in done_bins if minutes[b] > 0)
@@ -217,8 +217,8 @@ def run(args, console) -> int:
             "moves": score_of(m, m.done, rows).moves,
             "minutes": round(float(minutes[m.want].sum()), 1),
             "bins_contributed": [int(b) * bw for b in helped],
-            "alone": {"moves": score_of(m, m.done, alone_rows[len(summary_stations)]).moves,
-                      "bins_alone": alone_reports[len(summary_stations)].bins},
+            "alone": {"moves": score_of(m, m.done, alone_rows[k]).moves,
+                      "bins_alone": alone_reports[k].bins},
         })
     want_idx = np.flatnonzero(models[0].want)
     summary = {
